@@ -1,0 +1,180 @@
+"""Sign-offs: a preparer's and a checker's Ed25519 signature over a calc's content hash.
+
+Each signature covers a canonical statement (project, calc number, calc file, role,
+person, SHA-256 of the calc file's bytes, date; the checker's statement also names the
+preparer).  They live in `PROJECT/signoffs/<CALC>.json`.  Editing the calc file changes its
+hash, so earlier signatures go stale and the calc is a plain draft again.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from cryptography.exceptions import InvalidSignature
+
+from calcsheaf.errors import ArchiveError
+
+from . import projectfiles
+from .canonical import b64, canonical_json, pretty_json, today, unb64, write_atomic
+from .keys import PersonKeys, load_public_key
+
+ROLES = ("preparer", "checker")
+STATEMENT_FORMAT = "calcsheaf-signoff-1"
+FILE_FORMAT = "calcsheaf-signoffs-1"
+
+
+def signoff_file(project_root: Path, calc_number: str) -> Path:
+    return Path(project_root) / "signoffs" / f"{calc_number}.json"
+
+
+def make_statement(*, project: str, calc: str, calc_file: str, role: str, person: str,
+                   name: str, content_hash: str, date: str, preparer: str = "") -> dict:
+    statement = {"format": STATEMENT_FORMAT, "project": project, "calc": calc,
+                 "calc_file": calc_file, "role": role, "person": person, "name": name,
+                 "content_hash": content_hash, "date": date}
+    if role == "checker":
+        statement["preparer"] = preparer
+    return statement
+
+
+def sign_statement(keys: PersonKeys, statement: dict) -> dict:
+    return {"statement": statement,
+            "signature": b64(keys.ed25519.sign(canonical_json(statement)))}
+
+
+def signature_problem(record: dict, public_key: str) -> str | None:
+    """None when `record`'s signature verifies under `public_key`, else why not."""
+    try:
+        load_public_key(public_key).verify(unb64(record["signature"]),
+                                           canonical_json(record["statement"]))
+    except (InvalidSignature, KeyError, ValueError, ArchiveError):
+        who = record.get("statement", {}).get("person", "?")
+        return f"signature does not verify with the public key listed for '{who}'"
+    return None
+
+
+def load_records(project_root: Path, calc_number: str) -> dict[str, dict]:
+    path = signoff_file(project_root, calc_number)
+    if not path.exists():
+        return {}
+    data = json.loads(path.read_text(encoding="utf-8"))
+    return {role: rec for role, rec in data.get("signoffs", {}).items() if role in ROLES}
+
+
+def _save_records(project_root: Path, calc_number: str, records: dict[str, dict]) -> Path:
+    path = signoff_file(project_root, calc_number)
+    write_atomic(path, pretty_json({"format": FILE_FORMAT, "calc": calc_number,
+                                    "signoffs": records}))
+    return path
+
+
+def _who(statement: dict) -> dict:
+    return {"id": statement["person"], "name": statement.get("name", ""),
+            "date": statement["date"]}
+
+
+def _stale_reason(statement: dict, content_hash: str) -> str | None:
+    if statement.get("content_hash") != content_hash:
+        return (f"the calc file changed after {statement.get('name') or statement['person']} "
+                f"signed as {statement['role']} on {statement['date']} (signed content "
+                f"{statement.get('content_hash', '')[:12]}, now {content_hash[:12]})")
+    return None
+
+
+def signoff_status(project_root: Path, calc_number: str, content_hash: str) -> dict:
+    """Who has validly prepared and checked this content, and why other signatures do not count.
+
+    Returns {"state": "unsigned" | "prepared" | "checked", "prepared_by": {id, name, date}
+    or None, "checked_by": likewise, "stale": [{role, id, name, date, reason}],
+    "records": {role: signed record} (valid ones only)}.
+    """
+    people = projectfiles.people(project_root)
+    records = load_records(project_root, calc_number)
+    valid, stale = {}, []
+    for role in ROLES:
+        record = records.get(role)
+        if record is None:
+            continue
+        statement = record["statement"]
+        reason = _record_problem(record, role, calc_number, content_hash, people, valid)
+        if reason:
+            stale.append(dict(_who(statement), role=role, reason=reason))
+        else:
+            valid[role] = record
+    prepared = valid.get("preparer")
+    checked = valid.get("checker")
+    state = "checked" if checked else "prepared" if prepared else "unsigned"
+    return {"state": state,
+            "prepared_by": _who(prepared["statement"]) if prepared else None,
+            "checked_by": _who(checked["statement"]) if checked else None,
+            "stale": stale, "records": valid}
+
+
+def _record_problem(record: dict, role: str, calc_number: str, content_hash: str,
+                    people: dict, valid: dict) -> str | None:
+    statement = record["statement"]
+    person_id = statement.get("person", "")
+    if statement.get("role") != role or statement.get("calc") != calc_number:
+        return "the signed statement is for another calc or role"
+    if person_id not in people:
+        return f"'{person_id}' is no longer listed in project.toml"
+    problem = signature_problem(record, people[person_id]["public_key"])
+    if problem:
+        return problem
+    stale = _stale_reason(statement, content_hash)
+    if stale:
+        return stale
+    if role == "checker":
+        preparer = valid.get("preparer")
+        if preparer is None or preparer["statement"]["person"] != statement.get("preparer"):
+            return "the preparer's sign-off it checked is no longer valid"
+        if person_id == preparer["statement"]["person"]:
+            return "the checker is the same person as the preparer"
+    return None
+
+
+def sign(project_root: Path, calc_number: str, role: str, keys: PersonKeys) -> dict:
+    """Sign the calc's current content as `role`; returns the stored record.
+
+    Refuses: unknown role, a key that is not the one listed for the person, a checker
+    without a valid preparer sign-off, and one person taking both roles.
+    """
+    if role not in ROLES:
+        raise ArchiveError(f"role '{role}' is not known", key="--as",
+                           fix="use --as preparer or --as checker")
+    listed = projectfiles.person(project_root, keys.person_id)
+    if listed["public_key"] != keys.public_key_b64:
+        raise ArchiveError(f"the key on this machine for '{keys.person_id}' is not the one "
+                           "listed in project.toml", file=projectfiles.project_file(project_root),
+                           key="person", fix="sign with the key that keygen listed for you")
+    calc_file = projectfiles.find_calc_file(project_root, calc_number)
+    digest = projectfiles.content_hash(calc_file)
+    status = signoff_status(project_root, calc_number, digest)
+    preparer = status["prepared_by"]
+    _refuse_role_clash(role, keys.person_id, status, calc_number)
+    statement = make_statement(
+        project=projectfiles.project_number(project_root), calc=calc_number,
+        calc_file=calc_file.relative_to(project_root).as_posix(), role=role,
+        person=keys.person_id, name=keys.name, content_hash=digest, date=today(),
+        preparer=preparer["id"] if preparer else "")
+    records = load_records(project_root, calc_number)
+    records[role] = sign_statement(keys, statement)
+    _save_records(project_root, calc_number, records)
+    return records[role]
+
+
+def _refuse_role_clash(role: str, person_id: str, status: dict, calc_number: str) -> None:
+    preparer, checker = status["prepared_by"], status["checked_by"]
+    if role == "checker":
+        if preparer is None:
+            raise ArchiveError(f"calc {calc_number} has no valid preparer sign-off to check",
+                               key="--as", fix="the preparer signs first: "
+                               f"`calcsheaf sign PROJECT {calc_number} --as preparer --person ID`")
+        if preparer["id"] == person_id:
+            raise ArchiveError(f"'{person_id}' prepared calc {calc_number} and cannot also "
+                               "check it", key="--person",
+                               fix="a different person must sign as checker")
+    elif checker is not None and checker["id"] == person_id:
+        raise ArchiveError(f"'{person_id}' checked calc {calc_number} and cannot also prepare "
+                           "it", key="--person", fix="a different person must sign as preparer")
