@@ -1,0 +1,1 @@
+"""Calc files: TOML -> validated, frozen spec; safe expressions; units."""

@@ -1,0 +1,324 @@
+"""The safe expression language: text -> sympy by walking a whitelisted ast.
+
+User text never reaches eval, sympify, parse_expr or S(): a calc file may come
+from anyone.  Every name becomes a plain real symbol (so E, I, N, S, Q, gamma
+are ordinary engineering names) except `pi`.  The velocity of a coordinate q is
+the symbol `dot(q)`, its acceleration `ddot(q)`.  Query functions (peak, at,
+natural_frequency, ...) become undefined sympy functions, evaluated later.
+"""
+
+from __future__ import annotations
+
+import ast
+import difflib
+import math
+from dataclasses import dataclass, field
+
+import sympy as sp
+
+from ..errors import ExpressionError
+
+MAX_LENGTH = 4000          # characters
+MAX_NODES = 800            # syntax-tree nodes
+MAX_DEPTH = 60             # nesting depth
+MAX_EXPONENT = 64          # |n| of a numeric power
+MAX_MAGNITUDE_DIGITS = 300  # |base**n| of numbers stays below 10**300
+
+TIME = sp.Symbol("t", real=True)
+
+MATH_FUNCTIONS = {
+    "sin": (sp.sin, 1), "cos": (sp.cos, 1), "tan": (sp.tan, 1),
+    "asin": (sp.asin, 1), "acos": (sp.acos, 1), "atan": (sp.atan, 1),
+    "atan2": (sp.atan2, 2), "sinh": (sp.sinh, 1), "cosh": (sp.cosh, 1),
+    "tanh": (sp.tanh, 1), "exp": (sp.exp, 1), "log": (sp.log, 1),
+    "sqrt": (sp.sqrt, 1), "abs": (sp.Abs, 1), "sign": (sp.sign, 1),
+    "step": (sp.Heaviside, 1), "min": (sp.Min, None), "max": (sp.Max, None),
+}
+
+# Query functions of results: name -> number of arguments, and whether the
+# first argument is a time-history expression ("series"), a coordinate name
+# ("coordinate") or a mode number ("mode").
+QUERY_FUNCTIONS = {
+    "peak": (1, "series"), "max": (1, "series"), "min": (1, "series"),
+    "at": (2, "series"), "initial": (1, "series"), "final": (1, "series"),
+    "rms": (1, "series"), "mean": (1, "series"),
+    "period": (1, "coordinate"), "log_decrement": (1, "coordinate"),
+    "equilibrium": (1, "coordinate"),
+    "natural_frequency": (1, "mode"), "damping_ratio": (1, "mode"),
+    "damped_frequency": (1, "mode"),
+    "frf": (2, "response"), "frf_peak": (1, "response"),
+    "frf_peak_frequency": (1, "response"),
+}
+QUERY_NAMES = frozenset(QUERY_FUNCTIONS)
+RESERVED_NAMES = frozenset({"t", "pi", "dot", "ddot"} | set(MATH_FUNCTIONS) | QUERY_NAMES)
+
+
+def query_function(name: str) -> sp.FunctionClass:
+    """The undefined sympy function that stands for query `name`."""
+    return sp.Function(f"query_{name}")
+
+
+def query_name(func) -> str | None:
+    """`peak` for the function made by query_function("peak"), else None."""
+    name = getattr(func, "__name__", "")
+    return name[6:] if name.startswith("query_") and name[6:] in QUERY_NAMES else None
+
+
+def symbol(name: str) -> sp.Symbol:
+    """The plain real symbol of a calc name."""
+    return sp.Symbol(name, real=True)
+
+
+def velocity(name: str) -> sp.Symbol:
+    return sp.Symbol(f"dot({name})", real=True)
+
+
+def acceleration(name: str) -> sp.Symbol:
+    return sp.Symbol(f"ddot({name})", real=True)
+
+
+@dataclass(frozen=True)
+class Scope:
+    """What an expression may refer to.
+
+    names: plain names allowed (parameters, coordinates, outputs, `t`, ...).
+    coordinates: names allowed inside dot()/ddot().
+    velocities/accelerations: whether dot()/ddot() may appear.
+    queries: whether query functions may appear (results, criteria).
+    series_names: extra names allowed inside a query's series argument.
+    """
+    names: frozenset[str]
+    coordinates: frozenset[str] = frozenset()
+    velocities: bool = False
+    accelerations: bool = False
+    queries: bool = False
+    series_names: frozenset[str] = field(default_factory=frozenset)
+    what: str = "expression"
+
+
+@dataclass(frozen=True)
+class Where:
+    file: str | None = None
+    line: int | None = None
+    key: str | None = None
+
+
+def parse_expression(text, scope: Scope, where: Where = Where()) -> sp.Expr:
+    """Parse `text` in `scope` into a sympy expression, or raise ExpressionError."""
+    if isinstance(text, bool) or not isinstance(text, (str, int, float)):
+        raise _error(where, f"expected an expression as text, got {type(text).__name__}",
+                     'write it as a quoted string, e.g. "k/2 * x**2"')
+    text = str(text)
+    if len(text) > MAX_LENGTH:
+        raise _error(where, f"expression is {len(text)} characters long (limit {MAX_LENGTH})",
+                     "split it into named outputs or parameters")
+    if not text.strip():
+        raise _error(where, "expression is empty", 'write an expression, or "0"')
+    try:
+        tree = ast.parse(text.strip(), mode="eval")
+    except SyntaxError as exc:
+        col = exc.offset
+        raise _error(where, f"cannot read the expression: {exc.msg} (column {col})",
+                     "check the brackets and operators; powers are written **",
+                     column=col) from None
+    except (RecursionError, MemoryError, ValueError):
+        raise _error(where, "expression is nested too deeply",
+                     "simplify it or split it into parameters") from None
+    _check_size(tree, where)
+    return _Converter(scope, where, text).convert(tree.body, depth=0)
+
+
+def _check_size(tree: ast.AST, where: Where) -> None:
+    count = sum(1 for _ in ast.walk(tree))
+    if count > MAX_NODES:
+        raise _error(where, f"expression has {count} terms and operators (limit {MAX_NODES})",
+                     "split it into named outputs or parameters")
+
+
+def _error(where: Where, problem: str, fix: str | None = None,
+           column: int | None = None) -> ExpressionError:
+    return ExpressionError(problem, file=where.file, line=where.line, key=where.key,
+                           column=column, fix=fix)
+
+
+def _suggest(name: str, candidates) -> str:
+    close = difflib.get_close_matches(name, sorted(candidates), n=1)
+    return f"did you mean '{close[0]}'?" if close else ""
+
+
+class _Converter:
+    _BINOPS = {ast.Add: "+", ast.Sub: "-", ast.Mult: "*", ast.Div: "/", ast.Pow: "**"}
+
+    def __init__(self, scope: Scope, where: Where, text: str) -> None:
+        self.scope = scope
+        self.where = where
+        self.text = text
+
+    def fail(self, node: ast.AST, problem: str, fix: str | None = None):
+        col = getattr(node, "col_offset", None)
+        col = col + 1 if col is not None else None
+        token = ast.get_source_segment(self.text.strip(), node) if hasattr(node, "lineno") else None
+        if token and len(token) <= 60:
+            problem = f"{problem} at '{token}' (column {col})"
+        raise _error(self.where, problem, fix, column=col)
+
+    def convert(self, node: ast.AST, depth: int, in_series: bool = False) -> sp.Expr:
+        if depth > MAX_DEPTH:
+            self.fail(node, f"expression is nested more than {MAX_DEPTH} levels deep",
+                      "simplify it or split it into parameters")
+        if isinstance(node, ast.Constant):
+            return self._constant(node)
+        if isinstance(node, ast.Name):
+            return self._name(node, in_series)
+        if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.USub, ast.UAdd)):
+            operand = self.convert(node.operand, depth + 1, in_series)
+            return -operand if isinstance(node.op, ast.USub) else operand
+        if isinstance(node, ast.BinOp) and type(node.op) in self._BINOPS:
+            return self._binop(node, depth, in_series)
+        if isinstance(node, ast.BinOp) and isinstance(node.op, ast.BitXor):
+            self.fail(node, "'^' is not a power here", "write powers with **, e.g. x**2")
+        if isinstance(node, ast.Call):
+            return self._call(node, depth, in_series)
+        if isinstance(node, ast.Attribute):
+            self.fail(node, "attribute access is not allowed", "use plain names only")
+        if isinstance(node, ast.Subscript):
+            self.fail(node, "subscripts are not allowed", "use plain names such as x_1")
+        if isinstance(node, ast.Lambda):
+            self.fail(node, "lambda is not allowed", "write a plain expression")
+        self.fail(node, f"'{type(node).__name__}' is not part of the expression language",
+                  "use numbers, names, + - * / **, parentheses and the listed functions")
+
+    def _constant(self, node: ast.Constant) -> sp.Expr:
+        value = node.value
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            self.fail(node, "only numbers may appear as literals", "remove the quotes or text")
+        if isinstance(value, float):
+            if not math.isfinite(value):
+                self.fail(node, "number is not finite", "use a finite number")
+            return sp.Float(value)
+        if value.bit_length() > 1000:
+            self.fail(node, "integer literal is too large", "use a smaller number")
+        return sp.Integer(value)
+
+    def _name(self, node: ast.Name, in_series: bool) -> sp.Expr:
+        name = node.id
+        if name == "pi":
+            return sp.pi
+        if name == "t" and "t" in self.scope.names:
+            return TIME
+        allowed = self.scope.names | (self.scope.series_names if in_series else frozenset())
+        if name in allowed:
+            return symbol(name)
+        hint = _suggest(name, allowed | {"pi"})
+        if name in self.scope.series_names:
+            hint = f"'{name}' is a time history: use it inside a query such as peak({name})"
+        elif name in MATH_FUNCTIONS or name in QUERY_NAMES:
+            hint = f"'{name}' is a function: call it, e.g. {name}(...)"
+        self.fail(node, f"unknown name '{name}' in {self.scope.what}",
+                  hint or "define it under [parameters] (or as a coordinate)")
+
+    def _binop(self, node: ast.BinOp, depth: int, in_series: bool) -> sp.Expr:
+        left = self.convert(node.left, depth + 1, in_series)
+        right = self.convert(node.right, depth + 1, in_series)
+        op = type(node.op)
+        if op is ast.Add:
+            return left + right
+        if op is ast.Sub:
+            return left - right
+        if op is ast.Mult:
+            return left * right
+        if op is ast.Div:
+            if right.is_zero:
+                self.fail(node, "division by zero", "check the denominator")
+            return left / right
+        self._check_power(node, left, right)
+        return left ** right
+
+    def _check_power(self, node: ast.AST, base: sp.Expr, exponent: sp.Expr) -> None:
+        if not exponent.is_number:
+            return
+        value = complex(exponent.evalf(15))
+        if abs(value) > MAX_EXPONENT:
+            self.fail(node, f"power exponent {exponent} is too large (limit {MAX_EXPONENT})",
+                      "use a smaller exponent")
+        if base.is_number:
+            magnitude = abs(complex(base.evalf(15)))
+            if magnitude > 0 and abs(value.real) * abs(math.log10(magnitude)) > MAX_MAGNITUDE_DIGITS:
+                self.fail(node, "numeric power is too large", "use a smaller number")
+            if magnitude == 0 and value.real < 0:
+                self.fail(node, "zero to a negative power", "check the exponent")
+
+    def _call(self, node: ast.Call, depth: int, in_series: bool) -> sp.Expr:
+        if not isinstance(node.func, ast.Name):
+            self.fail(node, "only the listed functions may be called", "call e.g. sin(x)")
+        if node.keywords:
+            self.fail(node, "keyword arguments are not allowed", "pass arguments by position")
+        name = node.func.id
+        if name in ("dot", "ddot"):
+            return self._derivative(node, name, in_series)
+        if self.scope.queries and name in QUERY_NAMES and not in_series and \
+                not (name in ("max", "min") and len(node.args) != 1):
+            return self._query(node, name, depth)
+        if name in MATH_FUNCTIONS:
+            func, arity = MATH_FUNCTIONS[name]
+            if arity is not None and len(node.args) != arity:
+                self.fail(node, f"{name}() takes {arity} argument(s), got {len(node.args)}",
+                          f"call {name} with {arity} argument(s)")
+            if arity is None and len(node.args) < 2:
+                self.fail(node, f"{name}() takes two or more arguments here",
+                          f"write {name}(a, b)")
+            args = [self.convert(a, depth + 1, in_series) for a in node.args]
+            return func(*args)
+        if name in QUERY_NAMES:
+            self.fail(node, f"query function {name}() is only allowed in results, criteria "
+                      "and crosscheck comparisons", "move it to a [[result]]")
+        candidates = set(MATH_FUNCTIONS) | {"dot", "ddot"}
+        if self.scope.queries:
+            candidates |= QUERY_NAMES
+        self.fail(node, f"unknown function '{name}'",
+                  _suggest(name, candidates) or "see the list of functions in the docs")
+
+    def _derivative(self, node: ast.Call, name: str, in_series: bool) -> sp.Expr:
+        allowed = self.scope.accelerations if name == "ddot" else self.scope.velocities
+        if self.scope.queries and not in_series:
+            self.fail(node, f"{name}() is a time history here",
+                      f"use it inside a query, e.g. peak({name}(x))")
+        if not allowed:
+            self.fail(node, f"{name}() is not allowed in {self.scope.what}",
+                      "write it without time derivatives")
+        if len(node.args) != 1 or not isinstance(node.args[0], ast.Name):
+            self.fail(node, f"{name}() takes one coordinate name", f"write e.g. {name}(x)")
+        coord = node.args[0].id
+        if coord not in self.scope.coordinates:
+            hint = _suggest(coord, self.scope.coordinates)
+            self.fail(node, f"'{coord}' is not a coordinate",
+                      hint or "declare it under [coordinates]")
+        return velocity(coord) if name == "dot" else acceleration(coord)
+
+    def _query(self, node: ast.Call, name: str, depth: int) -> sp.Expr:
+        arity, kind = QUERY_FUNCTIONS[name]
+        if len(node.args) != arity:
+            self.fail(node, f"{name}() takes {arity} argument(s), got {len(node.args)}",
+                      f"call {name} with {arity} argument(s)")
+        first = node.args[0]
+        if kind == "series":
+            args = [self.convert(first, depth + 1, in_series=True)]
+        elif kind in ("coordinate", "response"):
+            if not isinstance(first, ast.Name) or first.id not in self._response_names(kind):
+                self.fail(first, f"{name}() takes a "
+                          f"{'coordinate' if kind == 'coordinate' else 'coordinate or output'} name",
+                          f"write e.g. {name}({next(iter(sorted(self.scope.coordinates)), 'x')})")
+            args = [symbol(first.id)]
+        else:
+            if not (isinstance(first, ast.Constant) and isinstance(first.value, int)
+                    and not isinstance(first.value, bool) and first.value >= 1):
+                self.fail(first, f"{name}() takes a mode number 1, 2, ...", f"write {name}(1)")
+            args = [sp.Integer(first.value)]
+        for extra in node.args[1:]:
+            args.append(self.convert(extra, depth + 1))
+        return query_function(name)(*args)
+
+    def _response_names(self, kind: str) -> frozenset[str]:
+        if kind == "coordinate":
+            return self.scope.coordinates
+        return self.scope.coordinates | self.scope.series_names

@@ -1,0 +1,651 @@
+"""Load and validate one calc file into a frozen CalcSpec.
+
+Validation collects every problem it can find in a file before reporting them
+together (errors.ProblemList); each message names the file, the line, the key,
+what is wrong and how to fix it.  Unknown keys are errors, with "did you mean".
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+from pathlib import Path
+from typing import Any, Callable
+
+import sympy as sp
+
+from ..errors import CalcsheafError, InputError, ProblemList
+from ..model import Assumption, Reference
+from . import spec as S
+from .expressions import (RESERVED_NAMES, TIME, Scope, Where, parse_expression, velocity)
+from .toml_source import read_toml
+from .units import (DIMENSIONLESS, DimensionChecker, describe, dimension_of, parse_quantity,
+                    parse_unit, si_factor, si_unit_text, to_si, ureg)
+
+NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
+HAZARDS = ("suspended_load", "people_under_load", "rotating_machinery")
+SECOND_METHODS = ("LSODA", "BDF", "Radau")
+
+TOP_KEYS = {
+    "calc": True, "assumption": False, "reference": False, "parameters": False,
+    "coordinates": True, "energy": True, "generalized_forces": False, "point_force": False,
+    "constraint": False, "initial": True, "analysis": False, "time_history": False,
+    "frequency_response": False, "output": False, "result": False, "criterion": False,
+    "crosscheck": False,
+}
+TABLE_KEYS = {
+    "calc": ({"number", "title"}, {"purpose", "revision", "hazards"}),
+    "assumption": ({"id", "text"}, {"basis", "open"}),
+    "reference": ({"id", "text"}, set()),
+    "energy": ({"kinetic"}, {"potential", "dissipation"}),
+    "point_force": ({"position", "force"}, {"label"}),
+    "constraint": ({"name", "equation"}, {"unit", "label"}),
+    "analysis": (set(), {"equilibrium", "modes", "energy_tolerance"}),
+    "time_history": ({"duration"}, {"points", "rtol", "atol", "second_method",
+                                    "agreement_tolerance"}),
+    "frequency_response": ({"force", "from", "to"}, {"points", "spacing"}),
+    "output": ({"name", "expr"}, {"unit", "label"}),
+    "result": ({"name", "expr"}, {"unit", "label"}),
+    "criterion": ({"name", "demand", "capacity"}, {"reference", "unit"}),
+    "crosscheck": ({"case", "compare"}, {"inputs", "tolerance"}),
+    "parameter": ({"value"}, {"source", "note"}),
+    "coordinate": ({"unit"}, {"label"}),
+}
+ARRAYS = {"assumption", "reference", "point_force", "constraint", "output", "result",
+          "criterion", "crosscheck"}
+
+
+def did_you_mean(name: str, candidates) -> str:
+    close = difflib.get_close_matches(name, sorted(candidates), n=1)
+    return f" (did you mean '{close[0]}'?)" if close else ""
+
+
+def load_calc(path: Path) -> S.CalcSpec:
+    """Read, validate and convert one calc file; raise ProblemList or InputError."""
+    text, data, lines = read_toml(path)
+    return _CalcLoader(path, text, data, lines).load()
+
+
+class _CalcLoader:
+    def __init__(self, path: Path, text: str, data: dict, lines: dict[str, int]) -> None:
+        self.path = path
+        self.text = text
+        self.data = data
+        self.lines = lines
+        self.problems: list[CalcsheafError] = []
+        self.dims: dict[str, Any] = {"t": ureg.second.dimensionality}
+
+    # ---- reporting ---------------------------------------------------------
+    def where(self, key: str) -> Where:
+        line = None
+        probe = key
+        while probe and line is None:
+            line = self.lines.get(probe)
+            probe = probe.rpartition(".")[0]
+        return Where(file=str(self.path), line=line, key=key)
+
+    def problem(self, key: str, problem: str, fix: str) -> None:
+        w = self.where(key)
+        self.problems.append(InputError(problem, file=w.file, line=w.line, key=key, fix=fix))
+
+    def attempt(self, fn: Callable[[], Any], default=None):
+        try:
+            return fn()
+        except ProblemList as many:
+            self.problems.extend(many.problems)
+        except CalcsheafError as exc:
+            self.problems.append(exc)
+        return default
+
+    # ---- generic shape checks ----------------------------------------------
+    def table(self, key: str, value, required: set[str], optional: set[str]) -> dict:
+        if not isinstance(value, dict):
+            self.problem(key, f"must be a table, got {_kind(value)}",
+                         f"write it as [{key.split('[')[0]}] with keys below it")
+            return {}
+        for name in sorted(set(value) - required - optional):
+            self.problem(f"{key}.{name}", f"unknown key '{name}'{did_you_mean(name, required | optional)}",
+                         f"allowed keys in {key.split('[')[0]}: {', '.join(sorted(required | optional))}")
+        for name in sorted(required - set(value)):
+            self.problem(key, f"missing key '{name}'", f"add {name} = ... to {key.split('[')[0]}")
+        return value
+
+    def rows(self, name: str) -> list[tuple[str, dict]]:
+        value = self.data.get(name, [])
+        if not isinstance(value, list):
+            self.problem(name, f"must be an array of tables, got {_kind(value)}",
+                         f"write each entry under its own [[{name}]] header")
+            return []
+        required, optional = TABLE_KEYS[name]
+        out = []
+        for index, row in enumerate(value, start=1):
+            key = f"{name}[{index}]"
+            out.append((key, self.table(key, row, required, optional)))
+        return out
+
+    def string(self, key: str, value, default: str | None = None) -> str | None:
+        if value is None:
+            return default
+        if not isinstance(value, str):
+            self.problem(key, f"must be text, got {_kind(value)}", 'put the value in quotes: "..."')
+            return default
+        return value
+
+    def boolean(self, key: str, value, default: bool) -> bool:
+        if value is None:
+            return default
+        if not isinstance(value, bool):
+            self.problem(key, f"must be true or false, got {_kind(value)}", "write true or false")
+            return default
+        return value
+
+    def number(self, key: str, value, default: float | None, *, positive: bool = True,
+               integer: bool = False) -> float | None:
+        if value is None:
+            return default
+        ok = isinstance(value, int) if integer else isinstance(value, (int, float))
+        if isinstance(value, bool) or not ok or (positive and value <= 0):
+            kind = "a positive whole number" if integer else "a positive number"
+            self.problem(key, f"must be {kind}, got {value!r}", f"write {kind}, e.g. {4000 if integer else 1e-6}")
+            return default
+        return value
+
+    def name(self, key: str, value, taken: dict[str, str]) -> str | None:
+        value = self.string(key, value)
+        if value is None:
+            return None
+        if not NAME.match(value):
+            self.problem(key, f"'{value}' is not a valid name",
+                         "use letters, digits and _ starting with a letter, e.g. F_iso")
+            return None
+        if value in RESERVED_NAMES:
+            self.problem(key, f"'{value}' is a reserved name (time, pi or a function)",
+                         "choose another name, e.g. " + value + "_1")
+            return None
+        if value in taken:
+            self.problem(key, f"'{value}' is already defined at {taken[value]}", "choose a unique name")
+            return None
+        taken[value] = key
+        return value
+
+    def quantity(self, key: str, value, expected=None, what: str = "value"):
+        quantity = parse_quantity(value, self.where(key))
+        if expected is not None and quantity.dimensionality != expected:
+            raise InputError(f"{what} '{value}' is {describe(quantity.dimensionality)}, "
+                             f"expected {describe(expected)}", file=str(self.path),
+                             line=self.where(key).line, key=key,
+                             fix=f"give it in a unit of {describe(expected)}")
+        return quantity
+
+    def expr(self, key: str, text, scope: Scope, expected=None, what: str | None = None) -> sp.Expr:
+        where = self.where(key)
+        expression = parse_expression(text, scope, where)
+        if expected is not None or what is not None:
+            checker = DimensionChecker(self.dims, where)
+            if expected is None:
+                checker.infer(expression)
+            else:
+                checker.check(expression, expected, what or key)
+        return expression
+
+    # ---- the calc --------------------------------------------------------------
+    def load(self) -> S.CalcSpec:
+        for name in sorted(set(self.data) - set(TOP_KEYS)):
+            self.problem(name, f"unknown table or key '{name}'{did_you_mean(name, TOP_KEYS)}",
+                         "remove it or correct its name")
+        for name, required in TOP_KEYS.items():
+            if required and name not in self.data:
+                self.problem(name, f"missing [{name}] table", f"add a [{name}] table; see the calc-file reference")
+        calc = self.attempt(self.calc_block, {})
+        ids: dict[str, str] = {}
+        assumptions = self.attempt(lambda: self.assumptions(ids), ())
+        references = self.attempt(lambda: self.references(ids), ())
+        names: dict[str, str] = {}
+        coordinates = self.attempt(lambda: self.coordinates(names), ())
+        parameters = self.attempt(lambda: self.parameters(names, ids), ())
+        coord_names = frozenset(c.name for c in coordinates)
+        param_names = frozenset(p.name for p in parameters)
+        energy = self.attempt(lambda: self.energy(param_names, coord_names), None)
+        forces = self.attempt(lambda: self.generalized_forces(param_names, coordinates), ())
+        point_forces = self.attempt(lambda: self.point_forces(param_names, coord_names), ())
+        constraints = self.attempt(lambda: self.constraints(param_names, coord_names, names), ())
+        initial = self.attempt(lambda: self.initial(coordinates), ())
+        analysis = self.attempt(self.analysis, S.AnalysisSpec())
+        history = self.attempt(self.time_history, None)
+        constraint_names = frozenset(c.name for c in constraints)
+        response = self.attempt(lambda: self.frequency_response(param_names, coordinates), None)
+        outputs = self.attempt(lambda: self.outputs(param_names, coord_names, constraint_names, names), ())
+        series = frozenset(o.name for o in outputs) | constraint_names | coord_names
+        results = self.attempt(lambda: self.results(param_names, coord_names, series, names), ())
+        value_names = param_names | frozenset(r.name for r in results)
+        criteria = self.attempt(lambda: self.criteria(value_names, coord_names, series, ids), ())
+        crosschecks = self.attempt(lambda: self.crosschecks(value_names, coord_names, series), ())
+        if self.problems:
+            raise ProblemList(_sorted_problems(self.problems))
+        return S.CalcSpec(
+            path=self.path, source_text=self.text, number=calc["number"], title=calc["title"],
+            purpose=calc["purpose"], revision=calc["revision"], hazards=calc["hazards"],
+            assumptions=assumptions, references=references, parameters=parameters,
+            coordinates=coordinates, kinetic=energy[0], potential=energy[1],
+            dissipation=energy[2], generalized_forces=forces, point_forces=point_forces,
+            constraints=constraints, initial=initial, analysis=analysis, time_history=history,
+            frequency_response=response, outputs=outputs, results=results, criteria=criteria,
+            crosschecks=crosschecks, lines=self.lines)
+
+    def calc_block(self) -> dict:
+        block = self.table("calc", self.data.get("calc", {}), *TABLE_KEYS["calc"])
+        number = self.string("calc.number", block.get("number"))
+        if number is not None and not re.match(r"^[A-Za-z0-9][A-Za-z0-9._-]*$", number):
+            self.problem("calc.number", f"calc number '{number}' cannot name a folder",
+                         "use letters, digits, '.', '_' and '-', e.g. C-102")
+            number = None
+        hazards = block.get("hazards", [])
+        if not isinstance(hazards, list) or any(h not in HAZARDS for h in hazards):
+            self.problem("calc.hazards", f"hazards must be a list drawn from {', '.join(HAZARDS)}",
+                         'write e.g. hazards = ["suspended_load"]')
+            hazards = []
+        return {"number": number or "?", "title": self.string("calc.title", block.get("title"), "?"),
+                "purpose": self.string("calc.purpose", block.get("purpose"), ""),
+                "revision": self.string("calc.revision", block.get("revision"), "A"),
+                "hazards": tuple(sorted(set(hazards)))}
+
+    def assumptions(self, ids: dict[str, str]) -> tuple[Assumption, ...]:
+        out = []
+        for key, row in self.rows("assumption"):
+            ident = self.string(f"{key}.id", row.get("id"))
+            self._register_id(key, ident, ids)
+            out.append(Assumption(id=ident or "?", text=self.string(f"{key}.text", row.get("text"), ""),
+                                  basis=self.string(f"{key}.basis", row.get("basis"), ""),
+                                  open=self.boolean(f"{key}.open", row.get("open"), False)))
+        return tuple(out)
+
+    def references(self, ids: dict[str, str]) -> tuple[Reference, ...]:
+        out = []
+        for key, row in self.rows("reference"):
+            ident = self.string(f"{key}.id", row.get("id"))
+            self._register_id(key, ident, ids)
+            out.append(Reference(id=ident or "?", text=self.string(f"{key}.text", row.get("text"), "")))
+        return tuple(out)
+
+    def _register_id(self, key: str, ident: str | None, ids: dict[str, str]) -> None:
+        if ident is None:
+            return
+        if ident in ids:
+            self.problem(f"{key}.id", f"id '{ident}' is already used by {ids[ident]}",
+                         "give every assumption and reference its own id")
+        ids[ident] = key
+
+    def coordinates(self, names: dict[str, str]) -> tuple[S.Coordinate, ...]:
+        block = self.data.get("coordinates", {})
+        if not isinstance(block, dict) or not block:
+            self.problem("coordinates", "needs at least one coordinate",
+                         'add e.g. x = { unit = "m", label = "..." }')
+            return ()
+        out = []
+        for name, value in block.items():
+            key = f"coordinates.{name}"
+            if isinstance(value, str):
+                value = {"unit": value}
+            row = self.table(key, value, *TABLE_KEYS["coordinate"])
+            if self.name(key, name, names) is None or "unit" not in row:
+                continue
+            unit = self.attempt(lambda: parse_unit(self.string(f"{key}.unit", row["unit"], "?"),
+                                                   self.where(f"{key}.unit")))
+            if unit is None:
+                continue
+            dim = unit.dimensionality
+            self.dims[name] = dim
+            self.dims[f"dot({name})"] = dim / ureg.second.dimensionality
+            self.dims[f"ddot({name})"] = dim / ureg.second.dimensionality ** 2
+            out.append(S.Coordinate(name=name, unit=row["unit"], si_unit=si_unit_text(dim),
+                                    dimension=dim, factor=si_factor(unit),
+                                    label=self.string(f"{key}.label", row.get("label"), "")))
+        return tuple(out)
+
+    def parameters(self, names: dict[str, str], ids: dict[str, str]) -> tuple[S.Parameter, ...]:
+        block = self.data.get("parameters", {})
+        if not isinstance(block, dict):
+            self.problem("parameters", f"must be a table, got {_kind(block)}", "write [parameters]")
+            return ()
+        out = []
+        for name, value in block.items():
+            key = f"parameters.{name}"
+            if not isinstance(value, dict):
+                value = {"value": value}
+            row = self.table(key, value, *TABLE_KEYS["parameter"])
+            if self.name(key, name, names) is None or "value" not in row:
+                continue
+            source = self.string(f"{key}.source", row.get("source"), "")
+            if source and source not in ids:
+                self.problem(f"{key}.source", f"source '{source}' is not an assumption or reference id"
+                             f"{did_you_mean(source, ids)}",
+                             "name the id of an [[assumption]] or [[reference]] of this calc")
+            quantity = self.attempt(lambda: self.quantity(key, row["value"]))
+            if quantity is None:
+                continue
+            self.dims[name] = quantity.dimensionality
+            out.append(S.Parameter(name=name, given=str(row["value"]), value=to_si(quantity),
+                                   unit=si_unit_text(quantity.dimensionality),
+                                   dimension=quantity.dimensionality, source=source,
+                                   note=self.string(f"{key}.note", row.get("note"), "")))
+        return tuple(out)
+
+    def _scope(self, params, coords, *, velocities=True, accelerations=False, extra=frozenset(),
+               what="expression") -> Scope:
+        return Scope(names=params | coords | {"t"} | extra, coordinates=coords,
+                     velocities=velocities, accelerations=accelerations, what=what)
+
+    def energy(self, params, coords):
+        block = self.table("energy", self.data.get("energy", {}), *TABLE_KEYS["energy"])
+        energy_dim = ureg.joule.dimensionality
+        power_dim = ureg.watt.dimensionality
+        kinetic = self.attempt(lambda: self.expr(
+            "energy.kinetic", block["kinetic"], self._scope(params, coords, what="the kinetic energy"),
+            energy_dim, "the kinetic energy")) if "kinetic" in block else None
+        potential = self.attempt(lambda: self.expr(
+            "energy.potential", block.get("potential", "0"),
+            self._scope(params, coords, velocities=False, what="the potential energy"),
+            energy_dim, "the potential energy"))
+        dissipation = self.attempt(lambda: self.expr(
+            "energy.dissipation", block.get("dissipation", "0"),
+            self._scope(params, coords, what="the dissipation function"),
+            power_dim, "the dissipation function (a power)"))
+        if kinetic is None or potential is None or dissipation is None:
+            return None
+        velocities = {velocity(c) for c in coords}
+        if not (kinetic.free_symbols & velocities):
+            self.problem("energy.kinetic", "the kinetic energy does not depend on any velocity",
+                         "write it in terms of dot(q) of the coordinates, e.g. m/2*dot(x)**2")
+        return kinetic, potential, dissipation
+
+    def generalized_forces(self, params, coordinates):
+        block = self.data.get("generalized_forces", {})
+        if not isinstance(block, dict):
+            self.problem("generalized_forces", f"must be a table, got {_kind(block)}",
+                         "write [generalized_forces] with one key per coordinate")
+            return ()
+        coords = frozenset(c.name for c in coordinates)
+        out = []
+        for name, text in block.items():
+            key = f"generalized_forces.{name}"
+            if name not in coords:
+                self.problem(key, f"'{name}' is not a coordinate{did_you_mean(name, coords)}",
+                             "give one generalized force per declared coordinate")
+                continue
+            expected = ureg.joule.dimensionality / self.dims[name]
+            expr = self.attempt(lambda: self.expr(key, text, self._scope(params, coords, what="a generalized force"),
+                                                  expected, f"the generalized force on {name}"))
+            if expr is not None:
+                out.append((name, expr))
+        return tuple(out)
+
+    def point_forces(self, params, coords):
+        out = []
+        length, force = ureg.meter.dimensionality, ureg.newton.dimensionality
+        for key, row in self.rows("point_force"):
+            position, vector = row.get("position"), row.get("force")
+            if not (isinstance(position, list) and isinstance(vector, list)
+                    and len(position) == len(vector) and len(position) in (2, 3)):
+                self.problem(key, "position and force must be lists of the same length (2 or 3)",
+                             'write position = ["x", "y"] and force = ["0", "-F"]')
+                continue
+            pos = [self.attempt(lambda i=i, p=p: self.expr(
+                f"{key}.position", p, self._scope(params, coords, velocities=False, what="a position"),
+                length, f"position component {i + 1}")) for i, p in enumerate(position)]
+            fvec = [self.attempt(lambda i=i, f=f: self.expr(
+                f"{key}.force", f, self._scope(params, coords, what="a force"),
+                force, f"force component {i + 1}")) for i, f in enumerate(vector)]
+            if None in pos or None in fvec:
+                continue
+            out.append(S.PointForce(position=tuple(pos), force=tuple(fvec),
+                                    label=self.string(f"{key}.label", row.get("label"), "")))
+        return tuple(out)
+
+    def constraints(self, params, coords, names):
+        out = []
+        for key, row in self.rows("constraint"):
+            name = self.name(f"{key}.name", row.get("name"), names)
+            if name is None or "equation" not in row:
+                continue
+            scope = self._scope(params, coords, velocities=False, what="a constraint equation")
+            equation = self.attempt(lambda: self.expr(f"{key}.equation", row["equation"], scope, None, "constraint"))
+            if equation is None:
+                continue
+            dim = DimensionChecker(self.dims, self.where(f"{key}.equation")).infer(equation)
+            if dim is None:
+                self.problem(f"{key}.equation", "the constraint equation is identically zero",
+                             "write g(q, t) whose zero set is the constraint, e.g. y1 + y2 - L")
+                continue
+            force_dim = ureg.joule.dimensionality / dim
+            self.dims[name] = force_dim
+            unit_text = self.string(f"{key}.unit", row.get("unit"), si_unit_text(force_dim))
+            unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text, force_dim))
+            if unit is None:
+                continue
+            out.append(S.Constraint(name=name, equation=equation, unit=unit_text,
+                                    factor=si_factor(unit),
+                                    label=self.string(f"{key}.label", row.get("label"), "")))
+        return tuple(out)
+
+    def _display_unit(self, key: str, text: str, expected):
+        unit = parse_unit(text, self.where(key))
+        if unit.dimensionality != expected and not (expected is None and unit.dimensionality == DIMENSIONLESS):
+            raise InputError(f"unit '{text}' is {describe(unit.dimensionality)}, but the value is "
+                             f"{describe(expected)}", file=str(self.path),
+                             line=self.where(key).line, key=key,
+                             fix=f"use a unit of {describe(expected)}, e.g. {si_unit_text(expected)}")
+        return unit
+
+    def initial(self, coordinates):
+        block = self.data.get("initial", {})
+        if not isinstance(block, dict):
+            self.problem("initial", f"must be a table, got {_kind(block)}", "write [initial]")
+            return ()
+        wanted = {}
+        for c in coordinates:
+            wanted[c.name] = c.dimension
+            wanted[f"dot({c.name})"] = c.dimension / ureg.second.dimensionality
+        for name in sorted(set(block) - set(wanted)):
+            self.problem(f"initial.{name}", f"'{name}' is not a coordinate or velocity"
+                         f"{did_you_mean(name, wanted)}", 'give values for each coordinate q and "dot(q)"')
+        out = []
+        for name, dim in wanted.items():
+            key = f'initial."{name}"' if "(" in name else f"initial.{name}"
+            if name not in block:
+                self.problem("initial", f"missing initial value of {name}",
+                             f'add {key.split(".", 1)[1]} = "0 {si_unit_text(dim)}" under [initial]')
+                continue
+            self.lines.setdefault(key, self.lines.get(f"initial.{name}", self.lines.get("initial", 0)))
+            q = self.attempt(lambda: self.quantity(f"initial.{name}", block[name], dim, f"initial {name}"))
+            if q is not None:
+                out.append((name, to_si(q)))
+        return tuple(out)
+
+    def analysis(self) -> S.AnalysisSpec:
+        block = self.table("analysis", self.data.get("analysis", {}), *TABLE_KEYS["analysis"])
+        return S.AnalysisSpec(
+            equilibrium=self.boolean("analysis.equilibrium", block.get("equilibrium"), True),
+            modes=self.boolean("analysis.modes", block.get("modes"), True),
+            energy_tolerance=self.number("analysis.energy_tolerance", block.get("energy_tolerance"), 1e-6))
+
+    def time_history(self) -> S.TimeHistorySpec | None:
+        if "time_history" not in self.data:
+            return None
+        block = self.table("time_history", self.data["time_history"], *TABLE_KEYS["time_history"])
+        if "duration" not in block:
+            return None
+        duration = self.quantity("time_history.duration", block["duration"], ureg.second.dimensionality,
+                                 "duration")
+        if to_si(duration) <= 0:
+            raise InputError("duration must be positive", file=str(self.path),
+                             line=self.where("time_history.duration").line, key="time_history.duration",
+                             fix='write e.g. duration = "5 s"')
+        points = self.number("time_history.points", block.get("points"), 2000, integer=True)
+        if points is not None and not 10 <= points <= 200_000:
+            self.problem("time_history.points", f"points must be between 10 and 200000, got {points}",
+                         "choose e.g. points = 4000")
+        method = self.string("time_history.second_method", block.get("second_method"), "LSODA")
+        if method not in SECOND_METHODS:
+            self.problem("time_history.second_method", f"'{method}' is not one of {', '.join(SECOND_METHODS)}",
+                         "choose LSODA (default), BDF or Radau")
+        return S.TimeHistorySpec(
+            duration=to_si(duration), points=int(points or 2000),
+            rtol=self.number("time_history.rtol", block.get("rtol"), 1e-10),
+            atol=self.number("time_history.atol", block.get("atol"), 1e-12),
+            second_method=method or "LSODA",
+            agreement_tolerance=self.number("time_history.agreement_tolerance",
+                                            block.get("agreement_tolerance"), 1e-6))
+
+    def frequency_response(self, params, coordinates) -> S.FrequencyResponseSpec | None:
+        if "frequency_response" not in self.data:
+            return None
+        block = self.table("frequency_response", self.data["frequency_response"],
+                           *TABLE_KEYS["frequency_response"])
+        coords = frozenset(c.name for c in coordinates)
+        force = block.get("force", {})
+        if not isinstance(force, dict) or not force:
+            self.problem("frequency_response.force", "needs at least one coordinate = amplitude",
+                         'write force = { x = "F0" }')
+            force = {}
+        rows = []
+        scope = Scope(names=params, what="a force amplitude")
+        for name, text in force.items():
+            key = f"frequency_response.force.{name}"
+            if name not in coords:
+                self.problem(key, f"'{name}' is not a coordinate{did_you_mean(name, coords)}",
+                             "give amplitudes for declared coordinates")
+                continue
+            expected = ureg.joule.dimensionality / self.dims[name]
+            if isinstance(text, str) and re.match(r"^\s*[-+]?[0-9.]+(e[-+]?[0-9]+)?\s+\S", text):
+                expr = self.attempt(lambda: sp.Float(to_si(self.quantity(
+                    key, text, expected, f"the force amplitude on {name}"))))
+            else:
+                expr = self.attempt(lambda: self.expr(key, text, scope, expected,
+                                                      f"the force amplitude on {name}"))
+            if expr is not None:
+                rows.append((name, expr, str(text)))
+        hz = ureg.hertz.dimensionality
+        start = self.attempt(lambda: to_si(self.quantity("frequency_response.from", block["from"], hz, "from")))
+        stop = self.attempt(lambda: to_si(self.quantity("frequency_response.to", block["to"], hz, "to")))
+        points = self.number("frequency_response.points", block.get("points"), 400, integer=True)
+        spacing = self.string("frequency_response.spacing", block.get("spacing"), "linear")
+        if spacing not in ("linear", "log"):
+            self.problem("frequency_response.spacing", f"'{spacing}' is not linear or log", 'write "linear" or "log"')
+        if start is None or stop is None:
+            return None
+        if not 0 <= start < stop:
+            self.problem("frequency_response", f"the range must satisfy 0 <= from < to (got {start} Hz to {stop} Hz)",
+                         "give from below to")
+            return None
+        if spacing == "log" and start <= 0:
+            self.problem("frequency_response.from", "log spacing needs from > 0", "give a positive from")
+        return S.FrequencyResponseSpec(force=tuple(rows), start_hz=start, stop_hz=stop,
+                                       points=int(points or 400), spacing=spacing or "linear")
+
+    def _named(self, key: str, row: dict, name: str, expr: sp.Expr) -> S.NamedExpr | None:
+        dim = DimensionChecker(self.dims, self.where(f"{key}.expr")).infer(expr)
+        unit_text = self.string(f"{key}.unit", row.get("unit"), None)
+        if unit_text is None:
+            unit_text = si_unit_text(dim)
+        unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text,
+                                                       DIMENSIONLESS if dim is None else dim))
+        if unit is None:
+            return None
+        self.dims[name] = DIMENSIONLESS if dim is None else dim
+        return S.NamedExpr(name=name, expr=expr, text=str(row["expr"]), unit=unit_text,
+                           factor=si_factor(unit), label=self.string(f"{key}.label", row.get("label"), ""))
+
+    def outputs(self, params, coords, constraints, names):
+        out = []
+        for key, row in self.rows("output"):
+            name = self.name(f"{key}.name", row.get("name"), names)
+            if name is None or "expr" not in row:
+                continue
+            scope = self._scope(params, coords, accelerations=True, extra=constraints, what="an output")
+            expr = self.attempt(lambda: self.expr(f"{key}.expr", row["expr"], scope, None, "output"))
+            if expr is not None:
+                item = self._named(key, row, name, expr)
+                if item is not None:
+                    out.append(item)
+        return tuple(out)
+
+    def _query_scope(self, values, coords, series, what) -> Scope:
+        return Scope(names=values, coordinates=coords, velocities=True, accelerations=True,
+                     queries=True, series_names=series | {"t"}, what=what)
+
+    def results(self, params, coords, series, names):
+        out = []
+        values = set(params)
+        for key, row in self.rows("result"):
+            name = self.name(f"{key}.name", row.get("name"), names)
+            if name is None or "expr" not in row:
+                continue
+            scope = self._query_scope(frozenset(values), coords, series, "a result")
+            expr = self.attempt(lambda: self.expr(f"{key}.expr", row["expr"], scope, None, "result"))
+            if expr is not None:
+                item = self._named(key, row, name, expr)
+                if item is not None:
+                    out.append(item)
+                    values.add(name)
+        return tuple(out)
+
+    def criteria(self, values, coords, series, ids):
+        out = []
+        for key, row in self.rows("criterion"):
+            if "demand" not in row or "capacity" not in row:
+                continue
+            scope = self._query_scope(values, coords, series, "a criterion")
+            demand = self.attempt(lambda: self.expr(f"{key}.demand", row["demand"], scope, None, "demand"))
+            capacity = self.attempt(lambda: self.expr(f"{key}.capacity", row["capacity"], scope, None, "capacity"))
+            reference = self.string(f"{key}.reference", row.get("reference"), "")
+            if reference and reference not in ids:
+                self.problem(f"{key}.reference", f"reference '{reference}' is not an id of this calc"
+                             f"{did_you_mean(reference, ids)}", "name a [[reference]] or [[assumption]] id")
+            if demand is None or capacity is None:
+                continue
+            dd = DimensionChecker(self.dims, self.where(f"{key}.demand")).infer(demand)
+            dc = DimensionChecker(self.dims, self.where(f"{key}.capacity")).infer(capacity)
+            if dd is not None and dc is not None and dd != dc:
+                self.problem(f"{key}.capacity", f"demand is {describe(dd)} but capacity is {describe(dc)}",
+                             "compare quantities of the same kind")
+                continue
+            dim = dd if dd is not None else (dc if dc is not None else DIMENSIONLESS)
+            unit_text = self.string(f"{key}.unit", row.get("unit"), si_unit_text(dim))
+            unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text, dim))
+            if unit is None:
+                continue
+            out.append(S.Criterion(name=self.string(f"{key}.name", row.get("name"), "?"),
+                                   demand=demand, demand_text=str(row["demand"]), capacity=capacity,
+                                   capacity_text=str(row["capacity"]), unit=unit_text,
+                                   factor=si_factor(unit), reference=reference))
+        return tuple(out)
+
+    def crosschecks(self, values, coords, series):
+        out = []
+        for key, row in self.rows("crosscheck"):
+            case = self.string(f"{key}.case", row.get("case"))
+            inputs, compare = row.get("inputs", {}), row.get("compare", {})
+            if not isinstance(inputs, dict) or not isinstance(compare, dict) or not compare:
+                self.problem(key, "inputs and compare must be tables; compare needs at least one quantity",
+                             'write inputs = { m = "m" } and compare = { natural_frequency_hz = "natural_frequency(1)" }')
+                continue
+            value_scope = Scope(names=values, what="a crosscheck input")
+            ins = [(n, self.attempt(lambda n=n, v=v: self.expr(f"{key}.inputs.{n}", v, value_scope, None, "input")))
+                   for n, v in inputs.items()]
+            query_scope = self._query_scope(values, coords, series, "a crosscheck comparison")
+            cmp = [(n, self.attempt(lambda n=n, v=v: self.expr(f"{key}.compare.{n}", v, query_scope, None, "compare")), str(v))
+                   for n, v in compare.items()]
+            tolerance = self.number(f"{key}.tolerance", row.get("tolerance"), None)
+            if case is None or any(e is None for _, e in ins) or any(e is None for _, e, _ in cmp):
+                continue
+            out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance))
+        return tuple(out)
+
+
+def _kind(value) -> str:
+    return {dict: "a table", list: "a list", str: "text", bool: "true/false", int: "a number",
+            float: "a number"}.get(type(value), type(value).__name__)
+
+
+def _sorted_problems(problems: list[CalcsheafError]) -> list[CalcsheafError]:
+    return sorted(problems, key=lambda p: (p.line or 0, p.key or ""))
