@@ -109,7 +109,7 @@ def _check_one(sig, role: str, pems: list[str], *, is_last: bool) -> tuple[str, 
     try:
         status = validate_pdf_signature(sig, context)
     except Exception as exc:   # malformed signature container after tampering
-        return item, False, f"cannot be validated ({exc})"
+        return item, False, f"the signed bytes were changed or damaged: cannot validate ({exc})"
     problems = []
     if not status.intact:
         return item, False, "the signed bytes were changed"
