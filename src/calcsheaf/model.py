@@ -93,12 +93,12 @@ class Check:
 
 @dataclass(frozen=True)
 class Equilibrium:
-    values: dict[str, float]          # coordinate -> SI value
-    units: dict[str, str]
+    values: dict[str, float]          # coordinate -> value in its declared unit
+    units: dict[str, str]             # coordinate -> declared unit (e.g. "mm", "deg")
     stable: bool
     verdict: str                      # e.g. "stable: stiffness positive definite"
     residual: float                   # largest |generalised force| left at the solution
-    multipliers: dict[str, float] = field(default_factory=dict)   # constraint forces at rest
+    multipliers: dict[str, float] = field(default_factory=dict)   # constraint forces at rest, display unit
 
 
 @dataclass(frozen=True)

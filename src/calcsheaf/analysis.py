@@ -1,0 +1,248 @@
+"""Run every analysis of one calc and assemble its CalcReport.
+
+Order: load -> derive -> mass-matrix check -> equilibrium -> linearisation and
+modes -> frequency response -> time history -> energy audit -> outputs ->
+results -> criteria -> crosschecks.  Bad input raises; a failed analysis
+becomes a failing Check in the report.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from pathlib import Path
+
+import numpy as np
+
+from . import model as m
+from .calcfile.loader import load_calc
+from .calcfile.spec import CalcSpec
+from .software import versions
+from .errors import AnalysisError, CalcsheafError, DerivationError
+from .mechanics import frequency, linearise as lin, simulate
+from .mechanics.codegen import NumericSystem, numeric, series_function
+from .mechanics.energy import audit
+from .mechanics.equilibrium import find_equilibrium
+from .mechanics.lagrange import Derivation, derive
+from .verification.checks import judge_criteria, run_crosschecks
+from .verification.queries import History, QueryContext
+
+HAZARD_FLAGS = ("suspended_load", "people_under_load", "rotating_machinery")
+
+
+def analyse_calc_file(path: Path, project_toml: Path | None = None) -> m.CalcReport:
+    """Load and analyse one calc file; bad input raises an errors.InputError."""
+    return analyse(load_calc(Path(path)))
+
+
+def failed_report(path: Path, error: CalcsheafError) -> m.CalcReport:
+    """The report of a calc that could not be loaded or derived at all."""
+    raw = path.read_bytes() if path.is_file() else b""
+    return m.CalcReport(number=path.stem, title="(calc file could not be read)", source_path=path,
+                        source_text=raw.decode("utf-8", "replace"),
+                        input_hash=hashlib.sha256(raw).hexdigest(), error=error)
+
+
+def analyse(spec: CalcSpec) -> m.CalcReport:
+    report = _base_report(spec)
+    report.software = versions()
+    derivation = derive(spec)
+    params = spec.parameter_values
+    system = NumericSystem(derivation, params)
+    initial = dict(spec.initial)
+    q0 = np.array([initial[n] for n in spec.coordinate_names])
+    qd0 = np.array([initial[f"dot({n})"] for n in spec.coordinate_names])
+    _check_mass_matrix(spec, system, q0, qd0)
+    _check_initial_constraints(spec, system, q0, qd0)
+    report.derivation, report.equations = derivation.steps, derivation.equations
+    checks = [m.Check("units", "dimensional consistency", True,
+                      "every energy, force, output and query expression checked with its units")]
+    ctx = QueryContext(spec=spec, derivation=derivation, params=params)
+
+    _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks)
+    _frequency_response(spec, ctx, report)
+    if spec.time_history is not None:
+        _time_history(spec, derivation, system, q0, qd0, ctx, report, checks)
+    _results(spec, ctx, report, checks)
+    rows, criterion_checks = judge_criteria(ctx)
+    report.criteria = tuple(rows)
+    cross, cross_checks = run_crosschecks(ctx)
+    report.crosschecks = tuple(cross)
+    open_items = [a.id for a in spec.assumptions if a.open]
+    report.checks = tuple(checks + criterion_checks + cross_checks)
+    if open_items:
+        report.cautions = (f"Open assumptions ({', '.join(open_items)}) must be confirmed before issue.",)
+    return report
+
+
+def _base_report(spec: CalcSpec) -> m.CalcReport:
+    raw = spec.path.read_bytes()
+    return m.CalcReport(
+        number=spec.number, title=spec.title, source_path=spec.path, source_text=spec.source_text,
+        input_hash=hashlib.sha256(raw).hexdigest(), revision=spec.revision, purpose=spec.purpose,
+        assumptions=spec.assumptions, references=spec.references,
+        inputs=tuple(m.InputRow(p.name, p.given, p.value, p.unit, p.source, p.note) for p in spec.parameters),
+        coordinates=tuple(m.CoordinateRow(c.name, c.unit, c.label) for c in spec.coordinates),
+        hazards=spec.hazards)
+
+
+def _check_mass_matrix(spec, system: NumericSystem, q0, qd0) -> None:
+    M, _, _, _ = system.matrices(0.0, q0, qd0)
+    eig = np.linalg.eigvalsh((M + M.T) / 2) if np.all(np.isfinite(M)) else np.array([np.nan])
+    if not np.all(np.isfinite(eig)) or eig.min() <= 1e-12 * max(1.0, float(np.max(np.abs(eig)))):
+        raise DerivationError(
+            f"the mass matrix (Hessian of the kinetic energy in the velocities) is not positive "
+            f"definite at the initial state (eigenvalues {', '.join(f'{e:.3g}' for e in eig)})",
+            file=str(spec.path), line=spec.line("energy.kinetic"), key="energy.kinetic",
+            fix="every coordinate needs a positive inertia: check the kinetic energy and the masses")
+
+
+def _check_initial_constraints(spec, system, q0, qd0) -> None:
+    if not system.m:
+        return
+    g = system.constraint_values(0.0, q0)
+    rate = system.constraint_rate(0.0, q0, qd0)
+    scale = max(1.0, float(np.max(np.abs(q0))))
+    for i, c in enumerate(spec.constraints):
+        if abs(g[i]) > 1e-9 * scale or abs(rate[i]) > 1e-9 * max(1.0, float(np.max(np.abs(qd0)))):
+            raise AnalysisError(
+                f"the initial values violate constraint '{c.name}': g = {g[i]:.6g}, "
+                f"dg/dt = {rate[i]:.6g} at t = 0", file=str(spec.path), line=spec.line("initial"),
+                key="initial", fix=f"choose initial positions and velocities that satisfy {c.name} = 0")
+
+
+def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) -> None:
+    if not spec.analysis.equilibrium:
+        return
+    try:
+        point = find_equilibrium(system, q0)
+    except AnalysisError as exc:
+        exc.located(file=spec.path, line=spec.line("analysis") or spec.line("initial"))
+        checks.append(m.Check("equilibrium", "static equilibrium", False, exc.message))
+        return
+    names = spec.coordinate_names
+    linear = lin.linearise(derivation, ctx.params, point.q, point.lambdas)
+    stable, verdict = lin.stability(linear)
+    report.equilibrium = m.Equilibrium(
+        values={c.name: float(v) / c.factor for c, v in zip(spec.coordinates, point.q)},
+        units={c.name: c.unit for c in spec.coordinates}, stable=stable, verdict=verdict,
+        residual=point.residual,
+        multipliers={c.name: float(v) / c.factor for c, v in zip(spec.constraints, point.lambdas)})
+    ctx.equilibrium = {n: float(v) for n, v in zip(names, point.q)}
+    ctx.linear, ctx.linear_point = linear, point.q
+    report.linearisation = linear.full
+    checks.append(m.Check("equilibrium", "static equilibrium", True,
+                          f"found, residual {point.residual:.2e}; {verdict}"))
+    if spec.analysis.modes:
+        report.modes = lin.modes(linear, names)
+        ctx.modes = report.modes
+
+
+def _frequency_response(spec, ctx: QueryContext, report) -> None:
+    fr = spec.frequency_response
+    if fr is None or ctx.linear is None:
+        return
+    names = spec.coordinate_names
+    force = np.zeros(len(names))
+    for name, expr, _ in fr.force:
+        force[names.index(name)] = float(numeric(expr, ctx.params))
+    ctx.force = force
+    freqs = frequency.grid(fr.start_hz, fr.stop_hz, fr.points, fr.spacing)
+    ctx.freqs = freqs
+    X = frequency.sweep(ctx.linear, force, freqs)
+    amplitude, phase, units = {}, {}, {}
+    for c, row in zip(spec.coordinates, X):
+        amplitude[c.name] = np.abs(row)
+        phase[c.name] = np.degrees(np.angle(row))
+        units[c.name] = c.si_unit
+    for o in spec.outputs:
+        try:
+            amp = ctx.amplitude_function(o.name)
+        except AnalysisError:
+            continue
+        amplitude[o.name] = np.array([amp(f) for f in freqs])
+        units[o.name] = o.unit
+    report.frequency_response = m.FrequencyResponse(
+        frequency_hz=freqs, amplitude=amplitude, phase_deg=phase, units=units,
+        excitation={n: text for n, _, text in fr.force})
+
+
+def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> None:
+    th = spec.time_history
+    powers = simulate.power_functions(derivation, ctx.params)
+    first, second = simulate.integrate(system, th, np.concatenate([q0, qd0]), powers)
+    for run, role in ((first, "primary"), (second, "independent")):
+        s = run.solver
+        checks.append(m.Check("solver", f"{role} integrator ({s.method})", s.success,
+                              f"status {s.status}: {s.message}; {s.nfev} evaluations"))
+    if not first.solver.success:
+        report.time_history = m.TimeHistory(t=first.t[:0], series=(), primary=first.solver,
+                                            secondary=second.solver, agreement=float("nan"),
+                                            agreement_tolerance=th.agreement_tolerance)
+        return
+    n = system.n
+    t, Y = first.t, first.y
+    Q, QD = Y[:n], Y[n:2 * n]
+    QDD = np.zeros_like(Q)
+    LAM = np.zeros((system.m, len(t)))
+    for k in range(len(t)):
+        QDD[:, k], LAM[:, k] = system.accelerations(t[k], Q[:, k], QD[:, k])
+    ctx.history = History(t=t, Q=Q, QD=QD, QDD=QDD, LAM=LAM, dense=first.dense)
+    agreement = simulate.agreement(first, second, n) if second.solver.success else float("nan")
+    if second.solver.success:
+        checks.append(m.Check("integrators", "two integrators agree", agreement <= th.agreement_tolerance,
+                              f"largest normalised difference {agreement:.2e} "
+                              f"(tolerance {th.agreement_tolerance:g})"))
+    drift = None
+    if system.m:
+        G = np.array([system.constraint_values(tk, Q[:, k]) for k, tk in enumerate(t)])
+        drift = float(np.max(np.abs(G)))
+        scale = max(1e-9, float(np.max(np.abs(Q))))
+        checks.append(m.Check("constraint", "constraint drift", drift <= 1e-6 * scale,
+                              f"largest |g| = {drift:.2e} (tolerance {1e-6 * scale:.2e})"))
+    series = _series(spec, ctx, Q, QD, LAM)
+    report.time_history = m.TimeHistory(t=t, series=tuple(series), primary=first.solver,
+                                        secondary=second.solver, agreement=agreement,
+                                        agreement_tolerance=th.agreement_tolerance,
+                                        constraint_drift=drift)
+    report.energy = audit(derivation, ctx.params, t, Q, QD, QDD, LAM, Y[2 * n], Y[2 * n + 1],
+                          spec.analysis.energy_tolerance)
+    checks.append(m.Check("energy", "energy audit", report.energy.passed,
+                          f"largest relative residual {report.energy.max_relative_residual:.2e} "
+                          f"(tolerance {report.energy.tolerance:g})"))
+    report.outputs = tuple(_summary(o, ctx.series(o.expr)) for o in spec.outputs)
+    if any(not np.isfinite([s.peak, s.max, s.min]).all() for s in report.outputs):
+        checks.append(m.Check("outputs", "outputs finite", False, "an output is not finite"))
+
+
+def _series(spec, ctx, Q, QD, LAM) -> list[m.Series]:
+    out = []
+    for i, c in enumerate(spec.coordinates):
+        out.append(m.Series(c.name, Q[i] / c.factor, c.unit, c.label, "coordinate"))
+    for i, c in enumerate(spec.coordinates):
+        out.append(m.Series(f"dot({c.name})", QD[i] / c.factor, f"{c.unit}/s",
+                            f"velocity of {c.name}", "velocity"))
+    for i, c in enumerate(spec.constraints):
+        out.append(m.Series(c.name, LAM[i] / c.factor, c.unit, c.label or "constraint force", "constraint"))
+    for o in spec.outputs:
+        out.append(m.Series(o.name, ctx.series(o.expr) / o.factor, o.unit, o.label, "output"))
+    return out
+
+
+def _summary(o, values: np.ndarray) -> m.OutputSummary:
+    v = values / o.factor
+    return m.OutputSummary(name=o.name, unit=o.unit, label=o.label, peak=float(np.max(np.abs(v))),
+                           max=float(np.max(v)), min=float(np.min(v)))
+
+
+def _results(spec, ctx: QueryContext, report, checks) -> None:
+    rows = []
+    for i, r in enumerate(spec.results, start=1):
+        try:
+            value = ctx.evaluate(r.expr, f"result[{i}].expr")
+        except CalcsheafError as exc:
+            checks.append(m.Check("result", r.name, False, exc.message))
+            ctx.values[r.name] = float("nan")
+            continue
+        ctx.values[r.name] = value
+        rows.append(m.ResultValue(r.name, r.text, value / r.factor, r.unit, r.label))
+    report.results = tuple(rows)

@@ -1,0 +1,1 @@
+"""Plain command functions; cli.py only parses arguments and calls these."""

@@ -1,0 +1,40 @@
+"""`calcsheaf check PROJECT`: load, validate, derive and analyse every calc; one line each."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from ..pipeline import analyse_project
+
+
+def check(project_root: Path, out=sys.stdout, err=sys.stderr) -> int:
+    """Print one line per calc; 0 when every calc passes, 1 otherwise."""
+    project, outcomes = analyse_project(Path(project_root))
+    failed = 0
+    for outcome in outcomes:
+        report = outcome.report
+        if report.error is not None:
+            failed += 1
+            print(f"FAIL  {outcome.path.name}: could not be analysed", file=out)
+            print(_indent(getattr(report.error, "message", str(report.error))), file=err)
+            continue
+        passed = sum(c.passed for c in report.checks)
+        ratio = report.largest_ratio
+        dc = f"{ratio:.2f}" if ratio is not None else "n/a"
+        energy = f"{report.energy.max_relative_residual:.1e}" if report.energy else "n/a"
+        verdict = "PASS" if report.passed else "FAIL"
+        failed += not report.passed
+        print(f"{verdict}  {report.number:<10} {report.title}  checks {passed}/{len(report.checks)}"
+              f"  max D/C {dc}  energy residual {energy}", file=out)
+        for c in report.checks:
+            if not c.passed:
+                print(_indent(f"{c.kind}: {c.name}: {c.detail}"), file=err)
+    total = len(outcomes)
+    print(f"{total - failed} of {total} calc(s) passed ({project.number} {project.name})", file=out)
+    return 1 if failed else 0
+
+
+def _indent(text: str) -> str:
+    return "\n".join("    " + line for line in text.splitlines())
+

@@ -1,0 +1,1 @@
+"""Mechanics: derivation of the equations of motion and the numerical analyses."""

@@ -1,0 +1,139 @@
+"""Linearisation about the equilibrium and modal analysis.
+
+M q̈ + (C + G) q̇ + (K + N) q = 0 about the rest state, with C, K symmetric and
+G, N skew (gyroscopic, circulatory).  Constraints are removed by a null-space
+basis of their Jacobian.  Undamped modes solve K φ = ω² M φ; damped modes are
+the eigenvalues s of the first-order system; ω_n = |s|, ζ = −Re(s)/|s|.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.linalg as la
+import sympy as sp
+
+from ..calcfile.expressions import TIME
+from ..model import Linearisation, Mode
+from .codegen import numeric
+from .lagrange import Derivation
+
+RIGID_TOL = 1e-9
+
+
+@dataclass(frozen=True)
+class Linear:
+    """Reduced linear model plus the basis that maps it back to all coordinates."""
+    full: Linearisation
+    basis: np.ndarray          # n × r
+    M: np.ndarray
+    D: np.ndarray              # full velocity matrix C + G (reduced)
+    S: np.ndarray              # full stiffness matrix K + N (reduced)
+
+
+def linearise(derivation: Derivation, params: dict[str, float], q_eq: np.ndarray,
+              lambdas: np.ndarray) -> Linear:
+    d = derivation
+    forcing = d.f + (d.G.T * sp.Matrix(d.lambdas) if d.lambdas else sp.zeros(len(d.q), 1))
+    jac_q = forcing.jacobian(d.q)
+    jac_qd = forcing.jacobian(d.qd)
+    args = [TIME, *d.q, *d.qd, *d.lambdas]
+    fn = sp.lambdify(args, [numeric(e, params) for e in (*d.M, *jac_q, *jac_qd, *d.G)],
+                     modules="math", cse=True)
+    n, m = len(d.q), len(d.lambdas)
+    flat = np.array(fn(0.0, *q_eq, *np.zeros(n), *lambdas), dtype=float)
+    M = flat[:n * n].reshape(n, n)
+    S = -flat[n * n:2 * n * n].reshape(n, n)
+    D = -flat[2 * n * n:3 * n * n].reshape(n, n)
+    Gc = flat[3 * n * n:].reshape(m, n)
+    basis = la.null_space(Gc) if m else np.eye(n)
+    sym = lambda A: (A + A.T) / 2
+    skew = lambda A: (A - A.T) / 2
+    full = Linearisation(coordinates=tuple(str(s) for s in d.q), M=M, C=sym(D), G=skew(D),
+                         K=sym(S), N=skew(S))
+    B = basis
+    return Linear(full=full, basis=B, M=B.T @ M @ B, D=B.T @ D @ B, S=B.T @ S @ B)
+
+
+def stability(linear: Linear) -> tuple[bool, str]:
+    """Stable when the stiffness is positive definite and no damped root grows."""
+    K = (linear.S + linear.S.T) / 2
+    eig = np.linalg.eigvalsh(K) if K.size else np.zeros(0)
+    scale = max(1.0, float(np.max(np.abs(eig)))) if eig.size else 1.0
+    roots = _state_roots(linear)
+    growing = [s for s in roots if s.real > 1e-9 * max(1.0, abs(s))]
+    if eig.size and eig.min() < -RIGID_TOL * scale:
+        return False, "unstable: the stiffness at the equilibrium has a negative eigenvalue"
+    if growing:
+        return False, "unstable: a root of the linearised system has a positive real part"
+    if eig.size and eig.min() <= RIGID_TOL * scale:
+        return True, "neutrally stable: zero stiffness in at least one direction (rigid-body mode)"
+    return True, "stable: stiffness positive definite at the equilibrium"
+
+
+def _state_roots(linear: Linear) -> np.ndarray:
+    r = linear.M.shape[0]
+    if r == 0:
+        return np.zeros(0, dtype=complex)
+    Minv = np.linalg.inv(linear.M)
+    A = np.block([[np.zeros((r, r)), np.eye(r)], [-Minv @ linear.S, -Minv @ linear.D]])
+    return np.linalg.eigvals(A)
+
+
+def modes(linear: Linear, names: tuple[str, ...]) -> tuple[Mode, ...]:
+    """Modes sorted by natural frequency, shapes normalised to a largest component of 1."""
+    r = linear.M.shape[0]
+    if r == 0:
+        return ()
+    K = (linear.S + linear.S.T) / 2
+    lam, vecs = la.eigh(K, linear.M)
+    scale = max(1.0, float(np.max(np.abs(lam))))
+    roots = _state_roots(linear)
+    damped = _damped_pairs(roots)
+    out = []
+    for i in range(r):
+        value = lam[i]
+        shape = _normalise(linear.basis @ vecs[:, i])
+        kind = "oscillatory"
+        omega = float(np.sqrt(value)) if value > 0 else 0.0
+        if abs(value) <= RIGID_TOL * scale:
+            kind = "rigid-body"
+        elif value < 0:
+            kind = "unstable"
+        zeta, wd = _match(damped, omega) if kind == "oscillatory" else (float("nan"), 0.0)
+        if kind == "oscillatory" and zeta >= 1.0:
+            kind = "overdamped"
+        out.append(Mode(index=i + 1, kind=kind, natural_frequency_hz=omega / (2 * np.pi),
+                        natural_frequency_rad_s=omega, damping_ratio=zeta,
+                        damped_frequency_hz=wd / (2 * np.pi),
+                        shape={n: float(v) for n, v in zip(names, shape)}))
+    return tuple(out)
+
+
+def _damped_pairs(roots: np.ndarray) -> list[tuple[float, float, float]]:
+    """(ω_n, ζ, ω_d) of each oscillatory pair and each pair of real (overdamped) roots."""
+    pairs = []
+    osc = sorted((s for s in roots if s.imag > 1e-12 * max(1.0, abs(s))), key=abs)
+    for s in osc:
+        wn = abs(s)
+        pairs.append((wn, -s.real / wn, s.imag))
+    real = sorted(s.real for s in roots if abs(s.imag) <= 1e-12 * max(1.0, abs(s)) and s.real < 0)
+    for a, b in zip(real[0::2], real[1::2]):
+        wn = float(np.sqrt(a * b))
+        pairs.append((wn, -(a + b) / (2 * wn), 0.0))
+    return pairs
+
+
+def _match(pairs, omega: float) -> tuple[float, float]:
+    """ζ and ω_d of the damped root pair nearest ω (consumed so each pair is used once)."""
+    if not pairs:
+        return 0.0, omega
+    best = min(range(len(pairs)), key=lambda i: abs(pairs[i][0] - omega))
+    wn, zeta, wd = pairs.pop(best)
+    return float(zeta), float(wd)
+
+
+def _normalise(v: np.ndarray) -> np.ndarray:
+    k = int(np.argmax(np.abs(v)))
+    return v / v[k] if v[k] != 0 else v

@@ -1,0 +1,117 @@
+"""Time histories: DOP853 with the energy integrals, and an independent second integrator.
+
+The primary run integrates y = [q, q̇, W_d, W_in] where Ẇ_d = q̇·∂R/∂q̇ is the
+dissipated power and Ẇ_in = Q·q̇ − ∂L/∂t + λᵀG q̇ the power put in.  The second
+run (LSODA by default, a different family) integrates [q, q̇] alone.  A failed
+integration is data: status, message and evaluation count.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import sympy as sp
+from scipy.integrate import solve_ivp
+
+from ..calcfile.expressions import TIME
+from ..calcfile.spec import TimeHistorySpec
+from ..model import SolverRun
+from .codegen import NumericSystem, numeric
+from .lagrange import Derivation
+
+
+class _RhsFailure(Exception):
+    pass
+
+
+@dataclass
+class Run:
+    solver: SolverRun
+    t: np.ndarray
+    y: np.ndarray                 # (states, N); empty when the run failed
+    dense: object = None          # OdeSolution of the primary run
+
+
+def power_functions(derivation: Derivation, params: dict[str, float]):
+    """Scalar functions (t, q, q̇, λ) -> dissipated power, input power."""
+    d = derivation
+    constraint_power = sp.Integer(0)
+    if d.lambdas:
+        constraint_power = (sp.Matrix(d.lambdas).T * d.G * sp.Matrix(d.qd))[0]
+    args = [TIME, *d.q, *d.qd, *d.lambdas]
+    exprs = [numeric(d.dissipated_power, params),
+             numeric(d.input_power - d.explicit_time_rate + constraint_power, params)]
+    return sp.lambdify(args, exprs, modules="math", cse=True)
+
+
+def integrate(system: NumericSystem, spec: TimeHistorySpec, y0: np.ndarray, powers) -> tuple[Run, Run]:
+    """Primary (DOP853 with energy integrals) and secondary runs over [0, duration]."""
+    t_eval = np.linspace(0.0, spec.duration, spec.points)
+    n = system.n
+
+    def primary_rhs(t, y):
+        q, qd = y[:n], y[n:2 * n]
+        qdd, lam = _safe(system.accelerations, t, q, qd)
+        p_diss, p_in = powers(t, *q, *qd, *lam)
+        out = np.concatenate([qd, qdd, [p_diss, p_in]])
+        if not np.all(np.isfinite(out)):
+            raise _RhsFailure(f"non-finite acceleration or power at t = {t:.6g} s")
+        return out
+
+    def secondary_rhs(t, y):
+        out = _safe(system.rhs, t, y)
+        if not np.all(np.isfinite(out)):
+            raise _RhsFailure(f"non-finite acceleration at t = {t:.6g} s")
+        return out
+
+    atol = _atol(y0, spec.atol)
+    first = _run("DOP853", primary_rhs, np.concatenate([y0, [0.0, 0.0]]), t_eval, spec,
+                 np.concatenate([atol, [spec.atol, spec.atol]]), dense=True)
+    # The multistep check runs 100 times tighter: its error constant is larger.
+    second = _run(spec.second_method, secondary_rhs, y0, t_eval, spec, atol, dense=False, tighten=1e-2)
+    return first, second
+
+
+def _atol(y0: np.ndarray, atol: float) -> np.ndarray:
+    return np.full(len(y0), atol)
+
+
+def _safe(fn, *args):
+    try:
+        with np.errstate(all="raise"):
+            return fn(*args)
+    except (np.linalg.LinAlgError, FloatingPointError, ZeroDivisionError, OverflowError,
+            ValueError) as exc:
+        raise _RhsFailure(f"{type(exc).__name__} while evaluating the equations at t = {args[0]:.6g} s: {exc}") from None
+
+
+def _run(method, rhs, y0, t_eval, spec: TimeHistorySpec, atol, dense: bool,
+         tighten: float = 1.0) -> Run:
+    counter = {"nfev": 0}
+
+    def counted(t, y):
+        counter["nfev"] += 1
+        return rhs(t, y)
+
+    rtol = max(spec.rtol * tighten, 1e-13)
+    atol = atol * tighten
+    try:
+        sol = solve_ivp(counted, (0.0, spec.duration), y0, method=method, t_eval=t_eval,
+                        rtol=rtol, atol=atol, dense_output=dense)
+    except _RhsFailure as exc:
+        return Run(SolverRun(method, False, -1, str(exc), counter["nfev"]), t_eval, np.zeros((len(y0), 0)))
+    solver = SolverRun(method, bool(sol.success), int(sol.status), str(sol.message), int(sol.nfev))
+    if not sol.success:
+        return Run(solver, t_eval, np.zeros((len(y0), 0)))
+    return Run(solver, sol.t, sol.y, sol.sol if dense else None)
+
+
+def agreement(first: Run, second: Run, n: int) -> float:
+    """Largest difference of q and q̇ between the runs, normalised per state by its largest value."""
+    a, b = first.y[:2 * n], second.y[:2 * n]
+    worst = 0.0
+    for i in range(2 * n):
+        scale = max(float(np.max(np.abs(a[i]))), 1e-12)
+        worst = max(worst, float(np.max(np.abs(a[i] - b[i]))) / scale)
+    return worst

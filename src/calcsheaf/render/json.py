@@ -1,0 +1,79 @@
+"""results.json: the machine-readable results of one calc (a writer: no computation).
+
+Every value is in the unit named beside it; non-finite numbers are written null.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+from ..model import CalcReport, ProjectInfo
+
+
+def _num(x):
+    if x is None:
+        return None
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def results_dict(report: CalcReport, project: ProjectInfo | None = None) -> dict:
+    data: dict = {
+        "calc": {"number": report.number, "title": report.title, "revision": report.revision,
+                 "status": report.status},
+        "project": {"number": project.number, "name": project.name} if project else {},
+        "input_hash": report.input_hash,
+    }
+    if report.error is not None:
+        data["error"] = getattr(report.error, "message", str(report.error))
+        data["passed"] = False
+        return data
+    if report.equilibrium is not None:
+        eq = report.equilibrium
+        data["equilibrium"] = {name: {"value": _num(value), "unit": eq.units[name]}
+                               for name, value in eq.values.items()}
+        data["stability"] = {"stable": report.equilibrium.stable, "verdict": report.equilibrium.verdict}
+    data["modes"] = [{"index": m.index, "kind": m.kind, "natural_frequency_hz": _num(m.natural_frequency_hz),
+                      "natural_frequency_rad_s": _num(m.natural_frequency_rad_s),
+                      "damping_ratio": _num(m.damping_ratio), "damped_frequency_hz": _num(m.damped_frequency_hz),
+                      "shape": {k: _num(v) for k, v in m.shape.items()}} for m in report.modes]
+    data["results"] = {r.name: {"value": _num(r.value), "unit": r.unit, "label": r.label, "expr": r.expr}
+                       for r in report.results}
+    data["outputs"] = {o.name: {"peak": _num(o.peak), "max": _num(o.max), "min": _num(o.min),
+                                "unit": o.unit, "label": o.label} for o in report.outputs}
+    if report.energy is not None:
+        e = report.energy
+        data["energy_audit"] = {"max_relative_residual": _num(e.max_relative_residual),
+                                "tolerance": e.tolerance, "pass": e.passed, "natural": e.natural,
+                                "notes": list(e.notes)}
+    if report.time_history is not None:
+        th = report.time_history
+        data["time_history"] = {
+            "duration_s": _num(th.t[-1]) if len(th.t) else None, "points": int(len(th.t)),
+            "integrators": [{"method": s.method, "success": s.success, "status": s.status,
+                             "message": s.message, "nfev": s.nfev} for s in (th.primary, th.secondary)],
+            "agreement": _num(th.agreement), "agreement_tolerance": th.agreement_tolerance,
+            "constraint_drift": _num(th.constraint_drift)}
+    data["criteria"] = [{"name": c.name, "demand": _num(c.demand), "capacity": _num(c.capacity),
+                         "unit": c.unit, "ratio": _num(c.ratio), "pass": c.passed,
+                         "reference": c.reference, "demand_expr": c.demand_expr,
+                         "capacity_expr": c.capacity_expr} for c in report.criteria]
+    data["crosschecks"] = [{"case": x.case, "quantity": x.quantity, "handbook": _num(x.handbook),
+                            "computed": _num(x.computed), "relative_error": _num(x.relative_error),
+                            "tolerance": x.tolerance, "pass": x.passed, "source": x.source,
+                            "formula": x.formula, "tolerance_reason": x.tolerance_reason,
+                            "validity": [{"limit": text, "holds": holds} for text, holds in x.validity]}
+                           for x in report.crosschecks]
+    data["checks"] = [{"kind": c.kind, "name": c.name, "pass": c.passed, "detail": c.detail}
+                      for c in report.checks]
+    data["software"] = dict(sorted(report.software.items()))
+    data["passed"] = report.passed
+    return data
+
+
+def results_json(report: CalcReport, project: ProjectInfo | None = None) -> bytes:
+    """Canonical bytes of results.json (sorted keys, two-space indent, trailing newline)."""
+    text = json.dumps(results_dict(report, project), indent=2, sort_keys=True,
+                      ensure_ascii=False, allow_nan=False)
+    return (text + "\n").encode("utf-8")

@@ -1,0 +1,207 @@
+"""The query functions of results, criteria and crosscheck comparisons.
+
+A query expression is a sympy expression whose query applications
+(query_peak(...), ...) are evaluated against the calc's analyses; the rest is
+ordinary arithmetic on parameters and earlier results.  Every value is SI:
+frequencies in Hz, times in s, mode numbers 1-based.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import sympy as sp
+from scipy import optimize
+
+from ..calcfile.expressions import query_name, symbol
+from ..errors import AnalysisError
+from ..mechanics import frequency
+from ..mechanics.codegen import numeric, series_function
+
+
+@dataclass
+class History:
+    t: np.ndarray
+    Q: np.ndarray
+    QD: np.ndarray
+    QDD: np.ndarray
+    LAM: np.ndarray
+    dense: Any = None             # OdeSolution of [q, q̇, ...]
+
+
+@dataclass
+class QueryContext:
+    spec: Any
+    derivation: Any
+    params: dict[str, float]
+    history: History | None = None
+    equilibrium: dict[str, float] | None = None
+    modes: tuple = ()
+    linear: Any = None
+    force: np.ndarray | None = None          # FRF generalized-force amplitudes
+    freqs: np.ndarray | None = None
+    linear_point: np.ndarray | None = None   # coordinates the linear model is taken about
+    values: dict[str, float] = field(default_factory=dict)   # results so far (SI)
+
+    def evaluate(self, expr: sp.Expr, key: str) -> float:
+        """SI value of a query expression; AnalysisError naming `key` when impossible."""
+        self.key = key
+        replaced = expr.replace(lambda e: query_name(e.func) is not None,
+                                lambda e: sp.Float(self._query(query_name(e.func), e.args)))
+        known = {**self.params, **self.values}
+        value = numeric(replaced, known)
+        try:
+            number = complex(value.evalf())
+        except (TypeError, ValueError):
+            raise self._fail(f"cannot evaluate '{sp.sstr(expr)}' to a number", "check the names used")
+        if abs(number.imag) > 1e-12 * max(1.0, abs(number.real)) or not np.isfinite(number.real):
+            raise self._fail(f"'{sp.sstr(expr)}' is not a finite real number ({number})",
+                             "check the expression and the analyses it queries")
+        return float(number.real)
+
+    def _fail(self, problem: str, fix: str) -> AnalysisError:
+        return AnalysisError(problem, file=str(self.spec.path), line=self.spec.line(self.key),
+                             key=self.key, fix=fix)
+
+    # ---- dispatch ------------------------------------------------------------
+    def _query(self, name: str, args) -> float:
+        if name in ("natural_frequency", "damping_ratio", "damped_frequency"):
+            return self._mode(name, int(args[0]))
+        if name == "equilibrium":
+            if self.equilibrium is None:
+                raise self._fail("equilibrium() needs the static equilibrium",
+                                 "set [analysis] equilibrium = true")
+            return self.equilibrium[str(args[0])]
+        if name.startswith("frf"):
+            return self._frf(name, args)
+        history = self._history(name)
+        if name in ("period", "log_decrement"):
+            return self._oscillation(name, str(args[0]), history)
+        values = self.series(args[0])
+        t = history.t
+        if name == "peak":
+            return float(np.max(np.abs(values)))
+        if name == "max":
+            return float(np.max(values))
+        if name == "min":
+            return float(np.min(values))
+        if name == "initial":
+            return float(values[0])
+        if name == "final":
+            return float(values[-1])
+        if name == "mean":
+            return float(np.trapezoid(values, t) / (t[-1] - t[0]))
+        if name == "rms":
+            return float(np.sqrt(np.trapezoid(values ** 2, t) / (t[-1] - t[0])))
+        if name == "at":
+            when = float(numeric(args[1], self.params))
+            if not t[0] <= when <= t[-1]:
+                raise self._fail(f"at() time {when} s is outside the time history 0..{t[-1]:g} s",
+                                 "give a time inside [time_history] duration")
+            return float(np.interp(when, t, values))
+        raise self._fail(f"unknown query {name}()", "see the list of query functions")
+
+    def _history(self, name: str) -> History:
+        if self.history is None:
+            raise self._fail(f"{name}() needs a time history, which this calc did not produce",
+                             "add a [time_history] table (or fix the integration failure shown)")
+        return self.history
+
+    def series(self, expr: sp.Expr) -> np.ndarray:
+        """Values of a time-history expression at the history's samples."""
+        h = self.history
+        outputs = {symbol(o.name): o.expr for o in self.spec.outputs}
+        expr = expr.xreplace(outputs)
+        fn = series_function(expr, self.derivation, self.params)
+        return fn(h.t, h.Q, h.QD, h.QDD, h.LAM)
+
+    def _mode(self, name: str, index: int) -> float:
+        if not self.modes:
+            raise self._fail(f"{name}({index}) needs the modes", "set [analysis] modes = true "
+                             "and equilibrium = true")
+        if index > len(self.modes):
+            raise self._fail(f"mode {index} does not exist: the calc has {len(self.modes)} mode(s)",
+                             f"ask for a mode between 1 and {len(self.modes)}")
+        mode = self.modes[index - 1]
+        return {"natural_frequency": mode.natural_frequency_hz, "damping_ratio": mode.damping_ratio,
+                "damped_frequency": mode.damped_frequency_hz}[name]
+
+    # ---- oscillation measures --------------------------------------------------
+    def _oscillation(self, name: str, coordinate: str, history: History) -> float:
+        names = self.spec.coordinate_names
+        i = names.index(coordinate)
+        n = len(names)
+        centre = self.equilibrium[coordinate] if self.equilibrium else float(np.mean(history.Q[i]))
+        if name == "period":
+            times = self._crossings(lambda t: history.dense(t)[i] - centre, history.Q[i] - centre, history)
+            if len(times) < 2:
+                raise self._fail(f"period({coordinate}) needs at least two upward crossings of its "
+                                 "mean position in the time history", "lengthen [time_history] duration")
+            return float((times[-1] - times[0]) / (len(times) - 1))
+        peaks_t = self._crossings(lambda t: -history.dense(t)[n + i], -history.QD[i], history)
+        peaks = [float(history.dense(t)[i] - centre) for t in peaks_t]
+        peaks = [p for p in peaks if p > 0]
+        if len(peaks) < 2:
+            raise self._fail(f"log_decrement({coordinate}) needs at least two positive peaks",
+                             "lengthen [time_history] duration or check the damping")
+        return float(np.log(peaks[0] / peaks[-1]) / (len(peaks) - 1))
+
+    def _crossings(self, fn, sampled: np.ndarray, history: History) -> list[float]:
+        """Times where `fn` crosses zero upwards, refined on the dense solution."""
+        t = history.t
+        idx = np.nonzero((sampled[:-1] < 0) & (sampled[1:] >= 0))[0]
+        out = []
+        for k in idx:
+            a, b = t[k], t[k + 1]
+            if history.dense is None or fn(a) * fn(b) > 0:
+                out.append(float(a - sampled[k] * (b - a) / (sampled[k + 1] - sampled[k])))
+            else:
+                out.append(float(optimize.brentq(fn, a, b, xtol=1e-14, rtol=1e-14)))
+        return out
+
+    # ---- frequency response ------------------------------------------------------
+    def _frf(self, name: str, args) -> float:
+        if self.linear is None or self.force is None:
+            raise self._fail(f"{name}() needs a [frequency_response] table and the equilibrium",
+                             "add [frequency_response] with force, from and to")
+        target = str(args[0])
+        amplitude_at = self.amplitude_function(target)
+        if name == "frf":
+            return amplitude_at(float(numeric(args[1], self.params)))
+        values = np.array([amplitude_at(f) for f in self.freqs])
+        best, where = frequency.peak(amplitude_at, self.freqs, values)
+        return best if name == "frf_peak" else where
+
+    def amplitude_function(self, target: str):
+        """f_hz -> amplitude of a coordinate or a linearised output."""
+        names = self.spec.coordinate_names
+        if target in names:
+            i = names.index(target)
+            return lambda f: float(abs(frequency.response(self.linear, self.force, f)[i]))
+        gains = output_gains(self, target)
+        if gains is None:
+            raise self._fail(f"'{target}' depends on time or a constraint force, so it has no "
+                             "linear frequency response", "query a coordinate or a plain output")
+        a, b, c = gains
+
+        def amplitude(f):
+            w = 2 * np.pi * f
+            X = frequency.response(self.linear, self.force, f)
+            return float(abs(a @ X + 1j * w * (b @ X) - w * w * (c @ X)))
+        return amplitude
+
+
+def output_gains(ctx: QueryContext, name: str):
+    """∂o/∂q, ∂o/∂q̇, ∂o/∂q̈ of an output at the equilibrium, or None when not linearisable."""
+    d = ctx.derivation
+    output = next(o for o in ctx.spec.outputs if o.name == name)
+    expr = output.expr
+    if expr.has(sp.Symbol("t", real=True)) or any(expr.has(l) for l in d.lambdas):
+        return None
+    at = {**{str(s): v for s, v in zip(d.q, ctx.linear_point)}, **{str(s): 0.0 for s in (*d.qd, *d.qdd)}}
+    values = []
+    for group in (d.q, d.qd, d.qdd):
+        values.append(np.array([float(numeric(sp.diff(expr, s), {**ctx.params, **at})) for s in group]))
+    return tuple(values)
