@@ -23,10 +23,11 @@ from .signoffs import ROLES, signature_problem
 
 Recompute = Callable[[Path, Path], dict]      # (calc file, project.toml) -> results dict
 RELATIVE_TOLERANCE = 1e-6
-# Solver diagnostics: they vary at round-off level between machines, so only their pass
-# flags are compared on recompute, not their values.
+# Solver diagnostics vary at round-off level (or in wording) between machines and library
+# versions, so on recompute only their pass flags are compared, not these values.
 DIAGNOSTIC_KEYS = frozenset({"max_relative_residual", "relative_error", "agreement",
-                             "residual", "constraint_drift", "software", "build_date"})
+                             "residual", "constraint_drift", "nfev", "message", "detail",
+                             "software", "build_date"})
 
 
 def _load_json(folder: Path, rel: str) -> tuple[dict | None, Row | None]:

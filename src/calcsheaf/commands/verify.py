@@ -5,7 +5,6 @@ Imports no analysis code unless --recompute is given, so it starts fast.
 
 from __future__ import annotations
 
-import tomllib
 from pathlib import Path
 
 from calcsheaf.archive.verify import verify_path
@@ -35,16 +34,8 @@ def verify(path: Path, *, recompute: bool = False) -> int:
 def recompute_results(calc_file: Path, project_toml: Path) -> dict:
     """Re-run the calc from frozen inputs and return its results.json dict."""
     from calcsheaf.analysis import analyse_calc_file
-    from calcsheaf.model import Person, ProjectInfo
+    from calcsheaf.project import load_project
     from calcsheaf.render.json import results_dict
 
-    data = tomllib.loads(project_toml.read_text(encoding="utf-8"))
-    head = data.get("project", {})
-    people = tuple(Person(**{k: str(p.get(k, "")) for k in
-                             ("id", "name", "role", "public_key", "certificate")})
-                   for p in data.get("person", []))
-    project = ProjectInfo(number=str(head.get("number", "")), name=str(head.get("name", "")),
-                          root=project_toml.parent, client=str(head.get("client", "")),
-                          site=str(head.get("site", "")), paper=str(head.get("paper", "A4")),
-                          people=people)
-    return results_dict(analyse_calc_file(calc_file, project_toml), project)
+    report = analyse_calc_file(calc_file, project_toml)
+    return results_dict(report, load_project(project_toml.parent))
