@@ -89,7 +89,7 @@ def fake_render(pdf: bytes, *, passed: bool = True):
         (out_dir / "results.json").write_bytes(pretty_json(results))
         (out_dir / "index.html").write_text(
             f"<h1>{calc_number} rev {revision}</h1><p>prepared by "
-            f"{signoff['prepared_by']['name']}, checked by {signoff['checked_by']['name']}</p>")
+            f"{signoff['prepared_by']}, checked by {signoff['checked_by']}</p>")
         (out_dir / f"{calc_number}.pdf").write_bytes(pdf)
         return out_dir
     return render
@@ -205,8 +205,9 @@ def test_preparer_then_checker_gives_checked(project):
     digest = sha256_file(project / "calcs" / "c1.toml")
     status = signoffs.signoff_status(project, "C-1", digest)
     assert status["state"] == "checked"
-    assert status["prepared_by"]["id"] == "ab" and status["checked_by"]["id"] == "cd"
-    assert status["prepared_by"]["date"] == "2023-11-14"     # from SOURCE_DATE_EPOCH
+    assert status["preparer"]["id"] == "ab" and status["checker"]["id"] == "cd"
+    assert (status["prepared_by"], status["checked_by"]) == ("Alice Able", "Chris Dale")
+    assert status["prepared_date"] == "2023-11-14"     # from SOURCE_DATE_EPOCH
 
 
 def test_preparer_cannot_sign_as_checker(project):
@@ -401,11 +402,12 @@ def test_revision_b_supersedes_a_and_diff_shows_the_change(project, tiny_pdf, ca
     calc = project / "calcs" / "c1.toml"
     calc.write_text(calc.read_text().replace('k = "1200000 N/m"', 'k = "1500000 N/m"'))
     _sign_both(project)
-    revisions.issue(project, "C-1", "B", render=render)
+    revisions.issue(project, "C-1", "B", description="Stiffer isolators", render=render)
     history = revisions.revision_history(project, "C-1")
+    assert history[1]["description"] == "Stiffer isolators"
     assert [(h["rev"], h["status"], h["superseded_by"]) for h in history] == [
         ("A", "superseded", "B"), ("B", "issued", None)]
-    assert history[1]["checked_by"] == {"id": "cd", "name": "Chris Dale"}
+    assert (history[1]["checked_by"], history[1]["checked_by_id"]) == ("Chris Dale", "cd")
     assert verify(project) == 0
     assert "revision B supersedes A: link matches" in capsys.readouterr().out
 
@@ -428,7 +430,7 @@ def test_diff_against_current_reads_the_latest_build(project, tiny_pdf):
     site = project / "_site" / "C-1"
     site.mkdir(parents=True)
     fake_render(tiny_pdf)(project, "C-1", site, status="draft", revision="B",
-                          signoff={"prepared_by": {"name": ""}, "checked_by": {"name": ""}})
+                          signoff={"prepared_by": "", "checked_by": ""})
     rows = revision_diff(project, "C-1", "A", "current")["rows"]
     assert all(r["change"] == "same" for r in rows)
 

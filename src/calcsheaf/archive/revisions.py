@@ -75,17 +75,23 @@ def ordered_revisions(project_root: Path, calc_number: str) -> list[tuple[str, b
 
 
 def revision_history(project_root: Path, calc_number: str) -> list[dict]:
-    """Every issued revision, oldest first: rev, date, status (issued | superseded),
-    superseded_by, prepared_by and checked_by ({id, name}), content_hash."""
+    """Every issued revision, oldest first, for the site's revision table.
+
+    Each: rev, date, status ("issued" | "superseded"), superseded_by (rev or None),
+    description, prepared_by and checked_by (names), prepared_by_id, checked_by_id,
+    content_hash (SHA-256 of the calc file issued).
+    """
     revs = ordered_revisions(project_root, calc_number)
     successor = {(m.get("supersedes") or {}).get("revision"): rev for rev, _, m in revs}
     history = []
     for rev, _, manifest in revs:
+        prepared, checked = manifest.get("prepared_by") or {}, manifest.get("checked_by") or {}
         history.append({
             "rev": rev, "date": manifest.get("date", ""),
             "status": "superseded" if rev in successor else "issued",
-            "superseded_by": successor.get(rev),
-            "prepared_by": manifest.get("prepared_by"), "checked_by": manifest.get("checked_by"),
+            "superseded_by": successor.get(rev), "description": manifest.get("description", ""),
+            "prepared_by": prepared.get("name", ""), "prepared_by_id": prepared.get("id", ""),
+            "checked_by": checked.get("name", ""), "checked_by_id": checked.get("id", ""),
             "content_hash": manifest.get("content_hash", "")})
     return history
 
@@ -117,7 +123,7 @@ def _ready(project_root: Path, calc_number: str) -> tuple[Path, str, dict]:
                            fix="confirm them and set open = false (then sign again)")
     status = signoff_status(project_root, calc_number, digest)
     if status["state"] != "checked":
-        reasons = "; ".join(s["reason"] for s in status["stale"])
+        reasons = status["stale_reason"]
         missing = "checker" if status["state"] == "prepared" else "preparer and checker"
         raise ArchiveError(f"calc {calc_number} lacks a valid {missing} sign-off"
                            + (f" ({reasons})" if reasons else ""), file=calc_file,
@@ -130,7 +136,7 @@ def _unlock_both(project_root: Path, status: dict, unlock: Unlock) -> dict[str, 
     listed = projectfiles.people(project_root)
     keys = {}
     for role in ROLES:
-        person_id = status[f"{'prepared' if role == 'preparer' else 'checked'}_by"]["id"]
+        person_id = status[role]["id"]
         keys[role] = unlock(person_id)
         if keys[role].public_key_b64 != listed[person_id]["public_key"]:
             raise ArchiveError(f"the key on this machine for '{person_id}' is not the one listed "
@@ -154,10 +160,12 @@ def _default_render() -> Render:
     return build_calc
 
 
-def issue(project_root: Path, calc_number: str, revision: str, *,
+def issue(project_root: Path, calc_number: str, revision: str, *, description: str = "",
           render: Render | None = None, unlock: Unlock | None = None) -> Path:
     """Freeze, sign and record revision `revision` of a calc; returns its folder.
 
+    `description` (e.g. "Issued for construction") goes into the signed manifest and the
+    site's revision table.
     `render(project_root, calc_number, out_dir, *, status, revision, signoff)` writes the
     calc's index.html, <CALC>.pdf and results.json into out_dir (default: the build's
     build_calc); `unlock(person_id)` returns that person's unlocked keys (default: the key
@@ -174,6 +182,7 @@ def issue(project_root: Path, calc_number: str, revision: str, *,
     try:
         facts = _stage(project_root, calc_number, revision, staging, calc_file, digest, status,
                        keys, render or _default_render())
+        facts["description"] = description
         _seal(staging, facts, keys)
         final = revision_folder(project_root, calc_number, revision)
         _refuse_existing(project_root, calc_number, revision)

@@ -70,7 +70,7 @@ def _save_records(project_root: Path, calc_number: str, records: dict[str, dict]
 
 
 def _who(statement: dict) -> dict:
-    return {"id": statement["person"], "name": statement.get("name", ""),
+    return {"id": statement["person"], "name": statement.get("name") or statement["person"],
             "date": statement["date"]}
 
 
@@ -85,9 +85,13 @@ def _stale_reason(statement: dict, content_hash: str) -> str | None:
 def signoff_status(project_root: Path, calc_number: str, content_hash: str) -> dict:
     """Who has validly prepared and checked this content, and why other signatures do not count.
 
-    Returns {"state": "unsigned" | "prepared" | "checked", "prepared_by": {id, name, date}
-    or None, "checked_by": likewise, "stale": [{role, id, name, date, reason}],
-    "records": {role: signed record} (valid ones only)}.
+    Returns, for the build's title block and sign-off panel:
+      state: "unsigned" | "prepared" | "checked"
+      prepared_by, prepared_date, checked_by, checked_date: names and ISO dates ("" if none)
+      stale: [{role, id, name, date, reason}], signatures that no longer count
+      stale_reason: their reasons joined by "; " ("" if none)
+    and for the archive: preparer / checker ({id, name, date} or None) and records
+    ({role: signed record}, valid ones only).
     """
     people = projectfiles.people(project_root)
     records = load_records(project_root, calc_number)
@@ -102,13 +106,15 @@ def signoff_status(project_root: Path, calc_number: str, content_hash: str) -> d
             stale.append(dict(_who(statement), role=role, reason=reason))
         else:
             valid[role] = record
-    prepared = valid.get("preparer")
-    checked = valid.get("checker")
-    state = "checked" if checked else "prepared" if prepared else "unsigned"
+    who = {role: _who(valid[role]["statement"]) if role in valid else None for role in ROLES}
+    state = "checked" if who["checker"] else "prepared" if who["preparer"] else "unsigned"
     return {"state": state,
-            "prepared_by": _who(prepared["statement"]) if prepared else None,
-            "checked_by": _who(checked["statement"]) if checked else None,
-            "stale": stale, "records": valid}
+            "prepared_by": (who["preparer"] or {}).get("name", ""),
+            "prepared_date": (who["preparer"] or {}).get("date", ""),
+            "checked_by": (who["checker"] or {}).get("name", ""),
+            "checked_date": (who["checker"] or {}).get("date", ""),
+            "stale": stale, "stale_reason": "; ".join(s["reason"] for s in stale),
+            "preparer": who["preparer"], "checker": who["checker"], "records": valid}
 
 
 def _record_problem(record: dict, role: str, calc_number: str, content_hash: str,
@@ -151,7 +157,7 @@ def sign(project_root: Path, calc_number: str, role: str, keys: PersonKeys) -> d
     calc_file = projectfiles.find_calc_file(project_root, calc_number)
     digest = projectfiles.content_hash(calc_file)
     status = signoff_status(project_root, calc_number, digest)
-    preparer = status["prepared_by"]
+    preparer = status["preparer"]
     _refuse_role_clash(role, keys.person_id, status, calc_number)
     statement = make_statement(
         project=projectfiles.project_number(project_root), calc=calc_number,
@@ -165,7 +171,7 @@ def sign(project_root: Path, calc_number: str, role: str, keys: PersonKeys) -> d
 
 
 def _refuse_role_clash(role: str, person_id: str, status: dict, calc_number: str) -> None:
-    preparer, checker = status["prepared_by"], status["checked_by"]
+    preparer, checker = status["preparer"], status["checker"]
     if role == "checker":
         if preparer is None:
             raise ArchiveError(f"calc {calc_number} has no valid preparer sign-off to check",
