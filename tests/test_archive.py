@@ -478,3 +478,29 @@ def test_compare_results_tolerance_and_ignored_fields():
     fresh["energy_audit"]["pass"] = False
     assert compare_results(frozen, fresh) == [
         "energy_audit.pass: True frozen, False recomputed", "x: 1.0 frozen, 1.000002 recomputed"]
+
+
+def test_a_site_sha256sums_catches_changed_and_added_files(issued, tmp_path):
+    site = tmp_path / "_site"
+    (site / "C-1").mkdir(parents=True)
+    (site / "C-1" / "results.json").write_text('{"passed": true}\n')
+    (site / "index.html").write_text("<h1>index</h1>\n")
+    sums = "".join(f"{sha256_file(site / rel)}  {rel}\n" for rel in ("C-1/results.json", "index.html"))
+    (site / "SHA256SUMS").write_text(sums)
+    assert verify(site) == 0
+    (site / "index.html").write_text("<h1>index!</h1>\n")
+    (site / "extra.html").write_text("new")
+    failures = dict(_failures(verify_path(site)[0][1]))
+    assert failures["site index.html"].startswith("content changed")
+    assert failures["site extra.html"] == "not listed in SHA256SUMS (file added)"
+
+
+def test_changes_since_issue_compares_the_draft_with_the_latest_revision(issued):
+    from calcsheaf.archive.diff import changes_since_issue
+    folder = issued["folder"]
+    results = json.loads((folder / "output" / "results.json").read_text())
+    results["results"]["f1"]["value"] = 6.5
+    text = (folder / "inputs" / "calcs" / "c1.toml").read_text().replace("850 kg", "800 kg")
+    diff = changes_since_issue(issued["root"], "C-1", text, results)
+    changed = {r["item"] for r in diff["rows"] if r["change"] != "same"}
+    assert diff["a"] == "A" and changed == {"parameter m", "result f1"}

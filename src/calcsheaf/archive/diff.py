@@ -137,6 +137,22 @@ def revision_diff(project_root: Path, calc_number: str, rev_a: str, rev_b: str) 
             "rows": compare_sides(old[0], old[1], new[0], new[1])}
 
 
+def changes_since_issue(project_root: Path, calc_number: str, calc_text: str,
+                        results: dict) -> dict | None:
+    """For a draft's page: {calc, a, b, rows} from the latest issued revision to the draft.
+
+    `calc_text` is the working calc file's text and `results` its results dict from this
+    build (not yet written).  None when the calc has no issued revision.
+    """
+    from .revisions import latest_revision
+    latest = latest_revision(project_root, calc_number)
+    if latest is None:
+        return None
+    old_calc, old_results = load_side(project_root, calc_number, latest)
+    return {"calc": calc_number, "a": latest, "b": CURRENT,
+            "rows": compare_sides(old_calc, old_results, tomllib.loads(calc_text), results)}
+
+
 def format_diff(diff: dict, *, width: int = 34) -> str:
     """Plain-text side-by-side table; changed rows are marked `*`, added `+`, removed `-`."""
     marks = {"same": " ", "changed": "*", "added": "+", "removed": "-"}

@@ -244,7 +244,7 @@ def check_sums(site: Path) -> list[Row]:
             digest, _, rel = line.partition("  ")
             recorded[rel.strip().lstrip("*")] = digest.strip()
     actual = {rel: digest for rel, digest in folder_files(site).items() if rel != "SHA256SUMS"}
-    return [(f"site {item}", ok, detail.replace("the manifest", "SHA256SUMS"))
+    return [(f"site {item.removeprefix('file ')}", ok, detail.replace("the manifest", "SHA256SUMS"))
             for item, ok, detail in compare_files(recorded, actual)]
 
 
@@ -255,9 +255,10 @@ def verify_path(path: Path, *, recompute: Recompute | None = None) -> list[tuple
     if (path / MANIFEST).is_file():
         root = _project_of_revision(path)
         return [(str(path), verify_revision(path, recompute=recompute, project_root=root))]
-    if (path / "SHA256SUMS").is_file():
-        sections.append((f"{path} (SHA256SUMS)", check_sums(path)))
     project = path.resolve() if (path / "project.toml").is_file() else None
+    for site in (path, path / "_site") if project else (path,):
+        if (site / "SHA256SUMS").is_file():
+            sections.append((f"{site} (SHA256SUMS)", check_sums(site)))
     for manifest in sorted(path.rglob(MANIFEST)):
         folder = manifest.parent
         if any(part.startswith(".staging-") for part in folder.parts):
