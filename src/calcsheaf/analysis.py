@@ -56,7 +56,7 @@ def analyse(spec: CalcSpec) -> m.CalcReport:
     report.derivation, report.equations = derivation.steps, derivation.equations
     checks = [m.Check("units", "dimensional consistency", True,
                       "every energy, force, output and query expression checked with its units")]
-    ctx = QueryContext(spec=spec, derivation=derivation, params=params)
+    ctx = QueryContext(spec=spec, derivation=derivation, params=params, system=system)
 
     _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks)
     _frequency_response(spec, ctx, report)

@@ -31,6 +31,8 @@ def make_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("build", help="analyse every calc and write the site (HTML, PDF, results.json)")
     p.add_argument("project", type=Path)
     p.add_argument("--out", type=Path, default=None, help="output folder (default PROJECT/_site)")
+    p = sub.add_parser("selftest", help="build every handbook case as a calc and write the verification report")
+    p.add_argument("--out", type=Path, default=None, help="output folder (default ./selftest-out)")
     return parser
 
 
@@ -41,6 +43,9 @@ def _run(args) -> int:
     if args.command == "build":
         from .commands.build import build
         return build(args.project, args.out)
+    if args.command == "selftest":
+        from .commands.selftest import selftest
+        return selftest(args.out)
     raise UsageError("no command given", fix="run 'calcsheaf --help' for the commands")
 
 

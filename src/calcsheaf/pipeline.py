@@ -26,6 +26,10 @@ def analyse_one(path: Path) -> CalcReport:
         return failed_report(path, exc)
 
 
+def analyse_paths(paths: list[Path]) -> list[CalcReport]:
+    return [analyse_one(p) for p in paths]
+
+
 def analyse_project(root: Path) -> tuple[ProjectInfo, list[Outcome]]:
     project = load_project(root)
     outcomes = [Outcome(p, analyse_one(p)) for p in calc_files(root)]

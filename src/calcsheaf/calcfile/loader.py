@@ -629,7 +629,7 @@ class _CalcLoader:
                 self.problem(key, "inputs and compare must be tables; compare needs at least one quantity",
                              'write inputs = { m = "m" } and compare = { natural_frequency_hz = "natural_frequency(1)" }')
                 continue
-            value_scope = Scope(names=values, what="a crosscheck input")
+            value_scope = self._query_scope(values, coords, series, "a crosscheck input")
             ins = [(n, self.attempt(lambda n=n, v=v: self.expr(f"{key}.inputs.{n}", v, value_scope, None, "input")))
                    for n, v in inputs.items()]
             query_scope = self._query_scope(values, coords, series, "a crosscheck comparison")

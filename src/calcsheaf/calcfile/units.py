@@ -236,7 +236,8 @@ class DimensionChecker:
         if name in ("at", "frf"):
             second = self.infer(expr.args[1])
             unit = "s" if name == "at" else "Hz"
-            if not same(second, DIMENSIONLESS):
+            own = ureg.Unit(unit).dimensionality
+            if not (same(second, DIMENSIONLESS) or second == own):
                 self.fail(f"the second argument of {name}() is a number in {unit}, "
                           f"but it is {describe(second)}", f"write a plain number of {unit}")
         return self.infer(expr.args[0])

@@ -43,6 +43,7 @@ class QueryContext:
     force: np.ndarray | None = None          # FRF generalized-force amplitudes
     freqs: np.ndarray | None = None
     linear_point: np.ndarray | None = None   # coordinates the linear model is taken about
+    system: Any = None                       # NumericSystem, for states between samples
     values: dict[str, float] = field(default_factory=dict)   # results so far (SI)
 
     def evaluate(self, expr: sp.Expr, key: str) -> float:
@@ -100,7 +101,9 @@ class QueryContext:
             if not t[0] <= when <= t[-1]:
                 raise self._fail(f"at() time {when} s is outside the time history 0..{t[-1]:g} s",
                                  "give a time inside [time_history] duration")
-            return float(np.interp(when, t, values))
+            if history.dense is None or self.system is None:
+                return float(np.interp(when, t, values))
+            return float(self.series(args[0], self._instant(when))[0])
         raise self._fail(f"unknown query {name}()", "see the list of query functions")
 
     def _history(self, name: str) -> History:
@@ -109,9 +112,18 @@ class QueryContext:
                              "add a [time_history] table (or fix the integration failure shown)")
         return self.history
 
-    def series(self, expr: sp.Expr) -> np.ndarray:
+    def _instant(self, when: float) -> History:
+        """The state at one time from the dense solution (exact to integrator accuracy)."""
+        n = self.system.n
+        y = self.history.dense(when)
+        qdd, lam = self.system.accelerations(when, y[:n], y[n:2 * n])
+        col = lambda v: np.asarray(v, dtype=float).reshape(-1, 1)
+        return History(t=np.array([when]), Q=col(y[:n]), QD=col(y[n:2 * n]), QDD=col(qdd),
+                       LAM=col(lam) if len(lam) else np.zeros((0, 1)))
+
+    def series(self, expr: sp.Expr, history: History | None = None) -> np.ndarray:
         """Values of a time-history expression at the history's samples."""
-        h = self.history
+        h = history or self.history
         outputs = {symbol(o.name): o.expr for o in self.spec.outputs}
         expr = expr.xreplace(outputs)
         fn = series_function(expr, self.derivation, self.params)

@@ -1,0 +1,49 @@
+"""`calcsheaf selftest [--out DIR]`: the software verification report.
+
+Every handbook case is built as a calc through the general machinery and
+compared with its closed form; the report (HTML, PDF/A, JSON) names the tool
+and dependency versions.  Exit 1 when any case fails.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+
+from ..render import pdf, theme
+from ..verification.selftest import SelftestReport, run_selftest
+
+FOLDER = "selftest"
+
+
+def selftest_files(report: SelftestReport) -> dict[str, bytes]:
+    """Site-root paths -> bytes of the report (selftest/index.html, .json, .pdf, static/)."""
+    data = report.as_dict()
+    env = theme.environment(None)
+    context = dict(data, links={"static": "../static"}, build_date="", paper="A4")
+    html = theme.render(env, "selftest.html.j2", medium="screen", **context)
+    printed = theme.render(env, "selftest.html.j2", medium="print", **context)
+    static = theme.static_assets(None)
+    document = pdf._document(printed, f"{FOLDER}/index.html", static)
+    files = {f"{FOLDER}/index.html": html.encode("utf-8"),
+             f"{FOLDER}/selftest.json": (json.dumps(data, indent=2, sort_keys=True) + "\n").encode(),
+             f"{FOLDER}/selftest.pdf": pdf._write(document, {"selftest.json": json.dumps(data).encode()}, "")}
+    files.update(static)
+    return files
+
+
+def selftest(out_dir: Path | None = None, out=sys.stdout) -> int:
+    from ..pipeline import analyse_paths
+    from .build import write_site
+
+    report = run_selftest(analyse_paths)
+    for o in report.outcomes:
+        worst = max((x.relative_error for x in o.report.crosschecks), default=float("nan"))
+        print(f"{'PASS' if o.passed else 'FAIL'}  {o.key:<24} largest relative error {worst:.1e}", file=out)
+    target = Path(out_dir) if out_dir else Path("selftest-out")
+    write_site(target, selftest_files(report))
+    print(f"{sum(o.passed for o in report.outcomes)} of {len(report.outcomes)} cases passed; "
+          f"report at {target / FOLDER / 'index.html'}", file=out)
+    return 0 if report.passed else 1
+
