@@ -16,6 +16,7 @@ from calcsheaf.model import (
     Equilibrium, FrequencyResponse, InputRow, Mode, OutputSummary, PackageModel, ProjectInfo,
     Reference, ResultValue, Series, SolverRun, Step, TimeHistory,
 )
+from calcsheaf.render.symbols import name_latex
 
 SOURCE_TOML = """[calc]
 number = "C-201"
@@ -41,10 +42,11 @@ def _derivation(extra: int = 0) -> tuple[Step, ...]:
     steps = [Step("Kinetic energy", "T", T), Step("Potential energy", "V", V),
              Step("Rayleigh dissipation function", "R", R), Step("Lagrangian", "L", L)]
     for q, dq in ((z, dz), (theta, dtheta)):
-        steps.append(Step("Momentum", rf"\frac{{\partial L}}{{\partial \dot{{{q.name}}}}}",
+        steps.append(Step("Momentum", rf"\frac{{\partial L}}{{\partial {name_latex(dq.name)}}}",
                           sp.diff(L, dq), q.name))
         steps.append(Step("Generalised force of the potential",
-                          rf"\frac{{\partial L}}{{\partial {sp.latex(q)}}}", sp.diff(L, q), q.name))
+                          rf"\frac{{\partial L}}{{\partial {name_latex(q.name)}}}",
+                          sp.diff(L, q), q.name))
     steps.append(Step("Mass matrix", "M(q)", sp.hessian(T, (dz, dtheta))))
     long = sp.expand((sp.diff(L, dz) + sp.diff(L, dtheta)) * (z + theta + l) ** 2)
     for index in range(extra):

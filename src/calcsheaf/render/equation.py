@@ -69,10 +69,9 @@ def _rows(lhs: str, expr, width: int) -> tuple[str, ...]:
 
 
 def layout(lhs: str, expr, width: int = ROW_WIDTH) -> Equation:
-    """Lay out `lhs = expr`; a sympy Equality supplies its own left side when `lhs` is ""."""
+    """Lay out `lhs = expr`; a sympy Equality is shown as its own two sides instead."""
     if isinstance(expr, sympy.Equality):
-        lhs = lhs or latex(expr.lhs)
-        expr = expr.rhs
+        lhs, expr = latex(expr.lhs), expr.rhs
     return Equation(lhs, _rows(lhs, expr, width))
 
 
