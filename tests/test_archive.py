@@ -259,7 +259,7 @@ def test_issue_refuses_failing_checks(project, tiny_pdf):
     with pytest.raises(ArchiveError, match="does not pass.*frequency above 5 Hz"):
         revisions.issue(project, "C-1", "A", render=fake_render(tiny_pdf, passed=False))
     assert not (project / "issued" / "C-1" / "A").exists()
-    assert list((project / "issued" / "C-1").iterdir()) == []    # staging cleaned up
+    assert list((project / "issued" / "C-1").glob(".staging-*")) == []    # cleaned up
 
 
 def test_issued_folder_holds_everything_and_verifies(issued, capsys):

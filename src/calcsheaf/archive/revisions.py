@@ -176,21 +176,47 @@ def issue(project_root: Path, calc_number: str, revision: str, *, description: s
     _refuse_existing(project_root, calc_number, revision)
     calc_file, digest, status = _ready(project_root, calc_number)
     keys = _unlock_both(project_root, status, unlock or unlock_from_key_file)
-    staging = calc_folder(project_root, calc_number) / f".staging-{revision}"
-    if staging.exists():
-        shutil.rmtree(staging)   # left by an interrupted issue of this revision; never published
-    try:
-        facts = _stage(project_root, calc_number, revision, staging, calc_file, digest, status,
-                       keys, render or _default_render())
-        facts["description"] = description
-        _seal(staging, facts, keys)
-        final = revision_folder(project_root, calc_number, revision)
+    base = calc_folder(project_root, calc_number)
+    base.mkdir(parents=True, exist_ok=True)
+    with _issue_lock(base):
         _refuse_existing(project_root, calc_number, revision)
-        os.rename(staging, final)
-    finally:
-        if staging.exists():
-            shutil.rmtree(staging)
+        for leftover in base.glob(".staging-*"):
+            shutil.rmtree(leftover)      # from an interrupted issue; never published
+        staging = base / f".staging-{revision}"
+        try:
+            facts = _stage(project_root, calc_number, revision, staging, calc_file, digest,
+                           status, keys, render or _default_render())
+            facts["description"] = description
+            _seal(staging, facts, keys)
+            final = revision_folder(project_root, calc_number, revision)
+            os.rename(staging, final)
+        finally:
+            if staging.exists():
+                shutil.rmtree(staging)
     return final
+
+
+def _issue_lock(base: Path):
+    """One issue at a time per calc, so each new revision supersedes the true latest."""
+    from filelock import FileLock, Timeout
+    lock = FileLock(str(base / ".issue.lock"))
+    try:
+        lock.acquire(timeout=60)
+    except Timeout:
+        raise ArchiveError("another issue of this calc is running", file=base / ".issue.lock",
+                           fix="wait for it to finish, then issue again") from None
+    return _Held(lock)
+
+
+class _Held:
+    def __init__(self, lock) -> None:
+        self.lock = lock
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.lock.release()
 
 
 def _stage(project_root: Path, calc_number: str, revision: str, staging: Path, calc_file: Path,
