@@ -37,7 +37,7 @@ def test_sdof_viscous_provides_the_fixed_names_from_m_k_c():
     case = get_case("sdof_viscous")
     assert dict(case.inputs) == {"m": "kg", "k": "N/m", "c": "N*s/m"}
     assert {"natural_frequency_hz", "damping_ratio", "damped_frequency_hz",
-            "log_decrement"} <= set(case.available({"m": 1, "k": 1, "c": 0}))
+            "log_decrement"} <= set(case.evaluate({"m": 1.0, "k": 1.0, "c": 0.1}))
 
 
 def test_unknown_key_suggests_the_nearest():
@@ -65,14 +65,6 @@ def test_missing_and_unknown_inputs_are_input_errors():
     assert "m [kg], k [N/m], c [N*s/m]" in info.value.fix
 
 
-def test_optional_inputs_add_the_free_response_only_when_given():
-    case = get_case("sdof_viscous")
-    base = {"m": 2.0, "k": 800.0, "c": 4.0}
-    assert "free_displacement_m" not in case.evaluate(base)
-    full = case.evaluate({**base, "x0": 0.01, "v0": 0.0, "t1": 0.0})
-    assert full["free_displacement_m"] == pytest.approx(0.01, rel=1e-15)
-
-
 def test_validity_limits_report_text_and_verdict():
     small = get_case("pendulum_small")
     ok = small.check_limits({"L": 1.0, "g": 9.81, "theta0": 0.1})
@@ -96,7 +88,6 @@ def test_case_record_is_complete(key):
         assert name == quantity.name
         assert quantity.unit
         assert "<math" in convert(quantity.formula)      # the report can typeset it
-        assert set(quantity.needs) <= set(case.optional_inputs)
 
 
 @pytest.mark.parametrize("key", sorted(CASES))
@@ -113,7 +104,6 @@ def test_selftest_calc_uses_design_keys_and_compares_every_quantity(key):
         assert set(row) <= {"case", "inputs", "compare", "tolerance"}
         assert not case.missing_inputs(row["inputs"]), row["inputs"]
         assert not case.unknown_inputs(row["inputs"]), row["inputs"]
-        assert set(row["compare"]) <= set(case.available(row["inputs"]))
         compared |= set(row["compare"])
     assert compared == set(case.provides)
 

@@ -51,14 +51,14 @@ def test_sdof_modal_quantities_match_the_state_matrix_eigenvalues():
 
 
 def test_sdof_free_response_and_decrement_match_solve_ivp():
-    case = get_case("sdof_viscous")
     p = {**SDOF, "c": 24.0, "x0": 0.005, "v0": 0.1, "t1": 0.37}
-    values = case.evaluate(p)
+    values = {**get_case("sdof_free_response").evaluate(p),
+              **get_case("sdof_viscous").evaluate({n: p[n] for n in "mkc"})}
     sol = integrate(lambda t, y: [y[1], -(p["k"] * y[0] + p["c"] * y[1]) / p["m"]],
                     [p["x0"], p["v0"]], 3.0)
     x1, v1 = sol.sol(p["t1"])
-    assert values["free_displacement_m"] == pytest.approx(x1, rel=1e-9)
-    assert values["free_velocity_m_s"] == pytest.approx(v1, rel=1e-9)
+    assert values["displacement_m"] == pytest.approx(x1, rel=1e-9)
+    assert values["velocity_m_s"] == pytest.approx(v1, rel=1e-9)
     # decrement: ln of the ratio of two displacements one damped period apart
     td = values["damped_period_s"]
     ratio = sol.sol(0.5)[0] / sol.sol(0.5 + td)[0]
@@ -265,13 +265,15 @@ def test_absorber_optimum_damping_lies_between_the_flat_at_p_and_flat_at_q_value
     assert values["optimum_damping_ratio"] ** 2 == pytest.approx(sum(ratios) / 2, rel=2e-3)
 
 
-def test_absorber_true_peak_is_within_one_percent_of_the_fixed_point_height():
-    values, k_a, c_a = absorber_design(ABSORBER)
-    wn = math.sqrt(ABSORBER["k"] / ABSORBER["M"])
-    grid = np.linspace(0.7 * wn, 1.3 * wn, 6001)
-    peak = max(main_amplification(ABSORBER, k_a, c_a, w) for w in grid)
+@pytest.mark.parametrize("mu", [0.05, 0.25])
+def test_absorber_true_peak_is_within_half_a_percent_of_the_fixed_point_height(mu):
+    p = {**ABSORBER, "m_a": mu * ABSORBER["M"]}
+    values, k_a, c_a = absorber_design(p)
+    wn = math.sqrt(p["k"] / p["M"])
+    grid = np.linspace(0.6 * wn, 1.4 * wn, 6001)
+    peak = max(main_amplification(p, k_a, c_a, w) for w in grid)
     assert peak >= values["fixed_point_amplification"] * (1 - 1e-9)
-    assert peak == pytest.approx(values["peak_amplification"], rel=1e-2)
+    assert peak == pytest.approx(values["peak_amplification"], rel=5e-3)
 
 
 def test_absorber_tuning_is_the_min_max_optimum_over_tuning():

@@ -8,7 +8,7 @@ does, for comparison.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from types import MappingProxyType
 from typing import Callable, Mapping
 
@@ -22,14 +22,12 @@ class Quantity:
     """One closed-form result of a case.
 
     `compute` maps SI inputs to the SI value in `unit` (pint-parseable; "1" for
-    a pure number).  `needs` names optional inputs of the case this quantity
-    also requires (beyond `Case.inputs`).
+    a pure number).
     """
     name: str
     unit: str
     formula: str
     compute: Callable[[Inputs], float]
-    needs: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -47,8 +45,7 @@ def _frozen(mapping: Mapping) -> Mapping:
 class Case:
     """A closed-form handbook case with its source and its self-test calc.
 
-    `inputs` are required (name -> SI unit); `optional_inputs` feed only the
-    quantities that list them in `Quantity.needs`.
+    `inputs` maps each input name to its SI unit; all are required.
     """
     key: str
     title: str
@@ -60,36 +57,23 @@ class Case:
     tolerance: float
     tolerance_reason: str
     selftest_calc: str
-    optional_inputs: Mapping[str, str] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "inputs", _frozen(self.inputs))
-        object.__setattr__(self, "optional_inputs", _frozen(self.optional_inputs))
         object.__setattr__(self, "provides", _frozen(self.provides))
 
-    @property
-    def all_inputs(self) -> Mapping[str, str]:
-        """Required and optional inputs: name -> SI unit."""
-        return _frozen({**self.inputs, **self.optional_inputs})
-
     def missing_inputs(self, given: Mapping[str, object]) -> tuple[str, ...]:
-        """Required inputs absent from `given`, sorted."""
+        """Inputs absent from `given`, sorted."""
         return tuple(sorted(set(self.inputs) - set(given)))
 
     def unknown_inputs(self, given: Mapping[str, object]) -> tuple[str, ...]:
         """Names in `given` that are not inputs of this case, sorted."""
-        return tuple(sorted(set(given) - set(self.all_inputs)))
-
-    def available(self, given: Mapping[str, object]) -> tuple[str, ...]:
-        """Quantities computable from `given` (required + their optional needs)."""
-        return tuple(name for name, q in self.provides.items()
-                     if all(n in given for n in q.needs))
+        return tuple(sorted(set(given) - set(self.inputs)))
 
     def evaluate(self, inputs: Inputs) -> dict[str, float]:
-        """Every available quantity for SI `inputs`; raises InputError on bad inputs."""
+        """Every provided quantity for SI `inputs`; raises InputError on bad inputs."""
         self._validate(inputs)
-        return {name: float(self.provides[name].compute(inputs))
-                for name in self.available(inputs)}
+        return {name: float(q.compute(inputs)) for name, q in self.provides.items()}
 
     def check_limits(self, inputs: Inputs) -> tuple[tuple[str, bool], ...]:
         """(limit text, holds?) for every validity limit, in declaration order."""
@@ -108,6 +92,4 @@ class Case:
                 f"handbook case '{self.key}' inputs: {'; '.join(parts)}",
                 key="crosscheck.inputs",
                 fix="give exactly the inputs " + ", ".join(
-                    f"{n} [{u}]" for n, u in self.inputs.items())
-                + (" (optional: " + ", ".join(self.optional_inputs) + ")"
-                   if self.optional_inputs else ""))
+                    f"{n} [{u}]" for n, u in self.inputs.items()))

@@ -150,8 +150,6 @@ m_a = "5 kg"
 k_a = "{number(k_a)} N/m"
 c_a = "{number(c_a)} N*s/m"
 F_0 = "100 N"
-f_P = "{number(f_p)} Hz"
-f_Q = "{number(f_q)} Hz"
 
 [coordinates]
 x_1 = {{ unit = "mm", label = "main mass displacement from equilibrium" }}
@@ -177,18 +175,18 @@ points = 2001
 [[crosscheck]]
 case = "tuned_mass_absorber"
 inputs = {{ M = "M", k = "k", m_a = "m_a" }}
-compare = {{ optimum_frequency_ratio = "sqrt(k_a/m_a)/sqrt(k/M)", optimum_damping_ratio = "c_a/(2*m_a*sqrt(k/M))", absorber_stiffness_N_m = "k_a", absorber_damping_N_s_m = "c_a", fixed_point_amplification = "k*frf(x_1, f_P)/F_0" }}
+compare = {{ optimum_frequency_ratio = "sqrt(k_a/m_a)/sqrt(k/M)", optimum_damping_ratio = "c_a/(2*m_a*sqrt(k/M))", absorber_stiffness_N_m = "k_a", absorber_damping_N_s_m = "c_a", fixed_point_amplification = "k*frf(x_1, {number(f_p)})/F_0" }}
 
 [[crosscheck]]
 case = "tuned_mass_absorber"
 inputs = {{ M = "M", k = "k", m_a = "m_a" }}
-compare = {{ fixed_point_amplification = "k*frf(x_1, f_Q)/F_0" }}
+compare = {{ fixed_point_amplification = "k*frf(x_1, {number(f_q)})/F_0" }}
 
 [[crosscheck]]
 case = "tuned_mass_absorber"
 inputs = {{ M = "M", k = "k", m_a = "m_a" }}
 compare = {{ peak_amplification = "k*frf_peak(x_1)/F_0" }}
-tolerance = 0.01
+tolerance = 5e-3
 """
 
 
@@ -223,7 +221,8 @@ TUNED_MASS_ABSORBER = Case(
     tolerance_reason=("tuning and damping rules and the fixed-point height are exact for the "
                       "model (round-off only); the true peak exceeds the fixed-point height "
                       "slightly because the optimum makes the curve flat at the fixed points "
-                      "only approximately, checked at 1e-2"),
+                      "only approximately: measured 0.08 % at mu = 0.05 and 0.41 % at "
+                      "mu = 0.25, so the peak is checked at 5e-3"),
     selftest_calc=absorber_calc(),
 )
 

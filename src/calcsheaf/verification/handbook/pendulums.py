@@ -142,8 +142,7 @@ PENDULUM_LARGE = Case(
     key="pendulum_large",
     title="Simple pendulum, large amplitude",
     family=FAMILY,
-    inputs={"L": "m", "g": "m/s^2", "theta0": "rad"},
-    optional_inputs={"m": "kg"},
+    inputs={"L": "m", "g": "m/s^2", "theta0": "rad", "m": "kg"},
     provides={q.name: q for q in (
         Quantity("period_s", "s",
                  r"T = 4\sqrt{\frac{L}{g}}\,K\!\left(\sin\frac{\theta_0}{2}\right)", large_period),
@@ -151,9 +150,9 @@ PENDULUM_LARGE = Case(
                  r"\dot{\theta}_{max} = 2\sqrt{\frac{g}{L}}\sin\frac{\theta_0}{2}",
                  lambda p: 2 * math.sqrt(p["g"] / p["L"]) * math.sin(p["theta0"] / 2)),
         Quantity("max_rod_tension_N", "N", r"N_{max} = m g (3 - 2\cos\theta_0)",
-                 lambda p: p["m"] * p["g"] * (3 - 2 * math.cos(p["theta0"])), ("m",)),
+                 lambda p: p["m"] * p["g"] * (3 - 2 * math.cos(p["theta0"]))),
         Quantity("min_rod_tension_N", "N", r"N_{min} = m g \cos\theta_0",
-                 lambda p: p["m"] * p["g"] * math.cos(p["theta0"]), ("m",)),
+                 lambda p: p["m"] * p["g"] * math.cos(p["theta0"])),
     )},
     limits=(
         ValidityLimit("swings back and forth: 0 < theta0 < pi",
