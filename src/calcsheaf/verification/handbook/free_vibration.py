@@ -165,7 +165,7 @@ points = 2001
 [[crosscheck]]
 case = "sdof_free_response"
 inputs = { m = "m", k = "k", c = "c", x0 = "x_0", v0 = "v_0", t1 = "t_1" }
-compare = { displacement_m = "at(x, 0.37)", velocity_m_s = "at(dot(x), 0.37)" }
+compare = { displacement_m = "at(x, t_1)", velocity_m_s = "at(dot(x), t_1)" }
 """
 
 SDOF_FREE_RESPONSE = Case(
@@ -226,6 +226,11 @@ name = "z_eq"
 expr = "equilibrium(z)"
 unit = "mm"
 label = "static equilibrium position"
+
+[[crosscheck]]
+case = "static_deflection"
+inputs = { g = "g", delta = "-equilibrium(z)" }
+compare = { natural_frequency_hz = "natural_frequency(1)" }
 
 [[crosscheck]]
 case = "static_deflection"

@@ -149,6 +149,8 @@ k = "100 kN/m"
 m_a = "5 kg"
 k_a = "{number(k_a)} N/m"
 c_a = "{number(c_a)} N*s/m"
+f_P = "{number(f_p)} Hz"
+f_Q = "{number(f_q)} Hz"
 F_0 = "100 N"
 
 [coordinates]
@@ -175,12 +177,12 @@ points = 2001
 [[crosscheck]]
 case = "tuned_mass_absorber"
 inputs = {{ M = "M", k = "k", m_a = "m_a" }}
-compare = {{ optimum_frequency_ratio = "sqrt(k_a/m_a)/sqrt(k/M)", optimum_damping_ratio = "c_a/(2*m_a*sqrt(k/M))", absorber_stiffness_N_m = "k_a", absorber_damping_N_s_m = "c_a", fixed_point_amplification = "k*frf(x_1, {number(f_p)})/F_0" }}
+compare = {{ optimum_frequency_ratio = "sqrt(k_a/m_a)/sqrt(k/M)", optimum_damping_ratio = "c_a/(2*m_a*sqrt(k/M))", absorber_stiffness_N_m = "k_a", absorber_damping_N_s_m = "c_a", fixed_point_amplification = "k*frf(x_1, f_P)/F_0" }}
 
 [[crosscheck]]
 case = "tuned_mass_absorber"
 inputs = {{ M = "M", k = "k", m_a = "m_a" }}
-compare = {{ fixed_point_amplification = "k*frf(x_1, {number(f_q)})/F_0" }}
+compare = {{ fixed_point_amplification = "k*frf(x_1, f_Q)/F_0" }}
 
 [[crosscheck]]
 case = "tuned_mass_absorber"

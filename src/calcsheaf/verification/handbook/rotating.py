@@ -245,7 +245,7 @@ points = 1201
 [[crosscheck]]
 case = "collar_rotating_arm"
 inputs = { m = "m", r0 = "r_0", Omega = "Omega", t1 = "t_1", L_arm = "L_arm" }
-compare = { radius_m = "at(r, 0.5)", radial_speed_m_s = "at(dot(r), 0.5)", drive_torque_N_m = "abs(at(M_arm, 0.5))", normal_force_N = "abs(at(M_arm, 0.5))/at(r, 0.5)" }
+compare = { radius_m = "at(r, t_1)", radial_speed_m_s = "at(dot(r), t_1)", drive_torque_N_m = "abs(at(M_arm, t_1))", normal_force_N = "abs(at(M_arm, t_1))/at(r, t_1)" }
 """
 
 COLLAR_ROTATING_ARM = Case(
