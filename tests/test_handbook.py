@@ -126,3 +126,14 @@ def test_evaluate_is_finite_at_the_selftest_numbers(key):
     values = case.evaluate(inputs)
     assert values and all(math.isfinite(v) for v in values.values())
     assert all(holds for _, holds in case.check_limits(inputs))
+
+
+def test_docs_table_is_the_generated_one():
+    from pathlib import Path
+
+    from calcsheaf.verification.handbook.table import markdown
+
+    docs = (Path(__file__).resolve().parents[1] / "docs" / "handbook.md").read_text()
+    assert markdown(CASES) in docs, "regenerate docs/handbook.md from handbook.table.markdown"
+    for key in CASES:
+        assert f"### `{key}`" in docs
