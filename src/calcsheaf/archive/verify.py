@@ -244,7 +244,8 @@ def check_sums(site: Path) -> list[Row]:
             digest, _, rel = line.partition("  ")
             recorded[rel.strip().lstrip("*")] = digest.strip()
     actual = {rel: digest for rel, digest in folder_files(site).items() if rel != "SHA256SUMS"}
-    return [(f"site {item.removeprefix('file ')}", ok, detail.replace("the manifest", "SHA256SUMS"))
+    return [(f"site {item.removeprefix('file ')}", ok,
+             detail.replace("the manifest", "SHA256SUMS"))
             for item, ok, detail in compare_files(recorded, actual)]
 
 
