@@ -3,7 +3,10 @@
 The primary run integrates y = [q, q̇, W_d, W_in] where Ẇ_d = q̇·∂R/∂q̇ is the
 dissipated power and Ẇ_in = Q·q̇ − ∂L/∂t + λᵀG q̇ the power put in.  The second
 run (LSODA by default, a different family) integrates [q, q̇] alone.  A failed
-integration is data: status, message and evaluation count.
+integration is data: status, message and evaluation count.  When the primary
+run fails, the second run is given at most SECOND_RUN_BUDGET times the
+primary's evaluations: enough to show whether another family gets through
+(stiff equations), without grinding on towards a blow-up.
 """
 
 from __future__ import annotations
@@ -19,6 +22,10 @@ from ..calcfile.spec import TimeHistorySpec
 from ..model import SolverRun
 from .codegen import NumericSystem, numeric
 from .lagrange import Derivation
+
+
+SECOND_RUN_BUDGET = 2
+MIN_BUDGET = 10_000
 
 
 class _RhsFailure(Exception):
@@ -68,8 +75,10 @@ def integrate(system: NumericSystem, spec: TimeHistorySpec, y0: np.ndarray, powe
     atol = _atol(y0, spec.atol)
     first = _run("DOP853", primary_rhs, np.concatenate([y0, [0.0, 0.0]]), t_eval, spec,
                  np.concatenate([atol, [spec.atol, spec.atol]]), dense=True)
+    budget = None if first.solver.success else max(SECOND_RUN_BUDGET * first.solver.nfev, MIN_BUDGET)
     # The multistep check runs 100 times tighter: its error constant is larger.
-    second = _run(spec.second_method, secondary_rhs, y0, t_eval, spec, atol, dense=False, tighten=1e-2)
+    second = _run(spec.second_method, secondary_rhs, y0, t_eval, spec, atol, dense=False, tighten=1e-2,
+                  budget=budget)
     return first, second
 
 
@@ -87,10 +96,14 @@ def _safe(fn, *args):
 
 
 def _run(method, rhs, y0, t_eval, spec: TimeHistorySpec, atol, dense: bool,
-         tighten: float = 1.0) -> Run:
+         tighten: float = 1.0, budget: int | None = None) -> Run:
+    """One solve_ivp run; stopped as a failure after `budget` evaluations when given."""
     counter = {"nfev": 0}
 
     def counted(t, y):
+        if budget is not None and counter["nfev"] >= budget:
+            raise _RhsFailure(f"stopped at t = {t:.6g} s after {budget} evaluations, the budget "
+                              "of the independent run once the primary run has failed")
         counter["nfev"] += 1
         return rhs(t, y)
 
