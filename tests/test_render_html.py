@@ -247,3 +247,21 @@ def test_theme_is_found_from_the_package():
     theme_dir = default_theme_dir()
     assert (theme_dir / "calc.html.j2").is_file()
     assert theme_dir == Path(__file__).resolve().parents[1] / "templates"
+
+
+def test_revision_history_and_signoff_in_title_block(tmp_path):
+    calc = failed_report()
+    calc.revision = "C"
+    history = [{"rev": "A", "date": "2024-01-10", "status": "superseded", "description": "First issue",
+                "prepared_by": "Ann Example", "checked_by": "Ben Example", "content_hash": "x"},
+               {"rev": "B", "date": "2024-03-02", "status": "issued", "description": "New buffer",
+                "prepared_by": "Ann Example", "checked_by": "Ben Example"}]
+    signoff = {"prepared_by": "Ann Example", "prepared_date": "2024-04-01", "checked_by": "",
+               "checked_date": "", "stale_reason": "checker signed an older content", "records": {}}
+    html = render_calc(calc, project(tmp_path), revisions=history, signoff=signoff).html
+    table = html[html.index('id="revisions"'):html.index('id="failure"')]
+    assert [table.index(r) for r in ("First issue", "New buffer", "Working revision, not issued")] \
+        == sorted(table.index(r) for r in ("First issue", "New buffer", "Working revision, not issued"))
+    block = html[html.index('class="title-block"'):html.index('id="revisions"')]
+    assert "Ann Example" in block and "2024-04-01" in block and "not signed" in block
+    assert "checker signed an older content" in block

@@ -45,7 +45,7 @@ LAGRANGE = Equation(
     r"\frac{d}{dt}\frac{\partial L}{\partial \dot{q}_{j}} - \frac{\partial L}{\partial q_{j}}"
     r" + \frac{\partial R}{\partial \dot{q}_{j}}", ("Q_{j}",))
 REVISION_KEYS = ("rev", "date", "status", "description", "prepared_by", "checked_by")
-SIGNOFF_KEYS = ("prepared_by", "prepared_date", "checked_by", "checked_date")
+SIGNOFF_KEYS = ("prepared_by", "prepared_date", "checked_by", "checked_date", "stale_reason")
 
 
 @dataclass(frozen=True)
@@ -122,10 +122,13 @@ def _rows(items: list[dict] | None, keys: tuple[str, ...]) -> list[dict]:
 
 
 def _revisions(report: CalcReport, revisions: list[dict] | None, build_date: str) -> list[dict]:
-    if revisions:
-        return _rows(revisions, REVISION_KEYS)
-    return [{"rev": report.revision, "date": build_date, "status": report.status,
-             "description": "This revision", "prepared_by": "", "checked_by": ""}]
+    """Issued revisions, oldest first, plus the revision shown here when it is not one of them."""
+    rows = _rows(revisions, REVISION_KEYS)
+    if report.revision not in {row["rev"] for row in rows}:
+        note = "Working revision, not issued" if report.status == "draft" else "This revision"
+        rows.append({"rev": report.revision, "date": build_date, "status": report.status,
+                     "description": note, "prepared_by": "", "checked_by": ""})
+    return rows
 
 
 def _links(number: str) -> dict[str, str]:
@@ -174,7 +177,9 @@ def render_calc(report: CalcReport, project: ProjectInfo, *, build_date: str = "
 
     `revisions`: dicts with rev, date, status, description, prepared_by, checked_by
     (oldest first); `signoff`: dict with prepared_by, prepared_date, checked_by,
-    checked_date (names and ISO dates as text).  `images` caches equation SVGs.
+    checked_date (names and ISO dates as text) and stale_reason (why other
+    signatures no longer count, or "").  Other keys are ignored.  `images`
+    caches equation SVGs.
     """
     env = theme.environment(project.root)
     collect = _Collector(report.number, images or EquationImages())
