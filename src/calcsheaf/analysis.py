@@ -159,7 +159,9 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
             amp = ctx.amplitude_function(o.name)
         except AnalysisError:
             continue
-        amplitude[o.name] = np.array([amp(f) for f in freqs])
+        values = np.array([amp.complex(f) for f in freqs]) / o.factor
+        amplitude[o.name] = np.abs(values)
+        phase[o.name] = np.degrees(np.angle(values))
         units[o.name] = o.unit
     report.frequency_response = m.FrequencyResponse(
         frequency_hz=freqs, amplitude=amplitude, phase_deg=phase, units=units,

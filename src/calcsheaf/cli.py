@@ -7,6 +7,7 @@ Heavy libraries are imported only by the subcommands that need them.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
@@ -21,6 +22,16 @@ class _Parser(argparse.ArgumentParser):
         raise SystemExit(2)
 
 
+def _positive(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        value = 0
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"--jobs must be a whole number of at least 1, got {text!r}")
+    return value
+
+
 def make_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="calcsheaf", description="Verified dynamics calculation packages from "
                      "plain-text calc files: derive, solve, check, publish, sign, verify.")
@@ -31,8 +42,38 @@ def make_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("build", help="analyse every calc and write the site (HTML, PDF, results.json)")
     p.add_argument("project", type=Path)
     p.add_argument("--out", type=Path, default=None, help="output folder (default PROJECT/_site)")
+    p.add_argument("--jobs", type=_positive, default=None, help="calcs analysed at once (default: cores)")
     p = sub.add_parser("selftest", help="build every handbook case as a calc and write the verification report")
     p.add_argument("--out", type=Path, default=None, help="output folder (default ./selftest-out)")
+    p = sub.add_parser("new", help="scaffold a project folder with one worked calc")
+    p.add_argument("path", type=Path)
+    p = sub.add_parser("preview", help="serve the site on localhost and rebuild on change")
+    p.add_argument("project", type=Path)
+    p.add_argument("--port", type=int, default=8000)
+    p = sub.add_parser("keygen", help="make a person's signing keys and add them to project.toml")
+    p.add_argument("--name", required=True)
+    p.add_argument("--id", required=True, dest="person_id")
+    p.add_argument("--project", required=True, type=Path)
+    p.add_argument("--role", default="")
+    p.add_argument("--pkcs12", type=Path, default=None, help="use the firm's PKCS#12 certificate")
+    p = sub.add_parser("sign", help="sign a calc's current content as preparer or checker")
+    p.add_argument("project", type=Path)
+    p.add_argument("calc")
+    p.add_argument("--as", dest="role", required=True, choices=["preparer", "checker"])
+    p.add_argument("--person", required=True)
+    p = sub.add_parser("issue", help="freeze, sign and archive a revision under issued/")
+    p.add_argument("project", type=Path)
+    p.add_argument("calc")
+    p.add_argument("--rev", required=True)
+    p.add_argument("--description", default="")
+    p = sub.add_parser("verify", help="check hashes, signatures and roles of issued revisions or a site")
+    p.add_argument("path", type=Path)
+    p.add_argument("--recompute", action="store_true", help="also re-run the calc from its frozen inputs")
+    p = sub.add_parser("diff", help="what changed between two revisions (REV_B may be 'current')")
+    p.add_argument("project", type=Path)
+    p.add_argument("calc")
+    p.add_argument("rev_a")
+    p.add_argument("rev_b")
     return parser
 
 
@@ -42,10 +83,31 @@ def _run(args) -> int:
         return check(args.project)
     if args.command == "build":
         from .commands.build import build
-        return build(args.project, args.out)
+        return build(args.project, args.out, args.jobs)
     if args.command == "selftest":
         from .commands.selftest import selftest
         return selftest(args.out)
+    if args.command == "new":
+        from .commands.new import new
+        return new(args.path)
+    if args.command == "preview":
+        from .commands.preview import preview
+        return preview(args.project, args.port)
+    if args.command == "keygen":
+        from .commands.keygen import keygen
+        return keygen(args.name, args.person_id, args.project, role=args.role, pkcs12=args.pkcs12)
+    if args.command == "sign":
+        from .commands.sign import sign
+        return sign(args.project, args.calc, args.role, args.person)
+    if args.command == "issue":
+        from .commands.issue import issue
+        return issue(args.project, args.calc, args.rev, description=args.description)
+    if args.command == "verify":
+        from .commands.verify import verify
+        return verify(args.path, recompute=args.recompute)
+    if args.command == "diff":
+        from .commands.diff import diff
+        return diff(args.project, args.calc, args.rev_a, args.rev_b)
     raise UsageError("no command given", fix="run 'calcsheaf --help' for the commands")
 
 
@@ -66,6 +128,13 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("calcsheaf: interrupted", file=sys.stderr)
         return 130
+    except Exception as exc:  # a bug in calcsheaf itself: say so plainly, no traceback
+        if os.environ.get("CALCSHEAF_DEBUG"):
+            raise
+        print(f"calcsheaf: internal error ({type(exc).__name__}: {exc}). Nothing was published "
+              "by this run. Fix: rerun with CALCSHEAF_DEBUG=1 for the traceback and report it.",
+              file=sys.stderr)
+        return 1
 
 
 if __name__ == "__main__":

@@ -26,6 +26,10 @@ class CalcsheafError(Exception):
         self.fix = fix
         super().__init__(self.message)
 
+    def __reduce__(self):
+        """Pickle with every field (calcs are analysed in worker processes)."""
+        return (_rebuild, (type(self), dict(self.__dict__)))
+
     @property
     def location(self) -> str:
         """`file:line:column` as far as known."""
@@ -56,6 +60,13 @@ class CalcsheafError(Exception):
             self.key = key
         self.args = (self.message,)
         return self
+
+
+def _rebuild(cls, fields: dict) -> "CalcsheafError":
+    error = cls.__new__(cls)
+    error.__dict__.update(fields)
+    Exception.__init__(error, error.message)
+    return error
 
 
 class InputError(CalcsheafError):

@@ -1,9 +1,14 @@
-"""`calcsheaf build PROJECT [--out DIR]`: analyse every calc, then write the site.
+"""`calcsheaf build PROJECT [--out DIR] [--jobs N]`: analyse every calc, then write the site.
+
+Incremental: a build whose inputs (calc files, project.toml, sign-offs, issued
+records, template overrides, tool code, SOURCE_DATE_EPOCH) are unchanged and
+whose site is intact does nothing; otherwise only changed calcs are analysed
+and rendered again (content-addressed cache), and the pages that list calcs.
 
 The site is written into a sibling temporary folder and swapped in atomically
 (renameat2 RENAME_EXCHANGE where the kernel has it), so a build killed at any
-moment leaves the previous site whole.  Builds of one project are serialised
-by a lock file; leftovers of killed builds are removed by the next one.
+moment leaves the previous site whole.  Builds of one site are serialised by a
+lock file; leftovers of killed builds are removed by the next one.
 """
 
 from __future__ import annotations
@@ -17,51 +22,116 @@ from pathlib import Path
 
 from filelock import FileLock, Timeout
 
-from ..errors import BuildError
-from ..model import PackageModel
-from ..pipeline import analyse_project
-from ..render.json import results_json
-from ..software import versions
-from . import publish
+from ..cache import Cache, key
+from ..errors import BuildError, InputError
+
+WATCHED = ("project.toml", "calcs", "signoffs", "issued", "templates")
 
 
-def build(project_root: Path, out_dir: Path | None = None, out=sys.stdout, err=sys.stderr) -> int:
+def build(project_root: Path, out_dir: Path | None = None, jobs: int | None = None,
+          out=sys.stdout, err=sys.stderr) -> int:
     """Build the site; 0 when every calc passes, 1 when any fails (the site is still written)."""
     root = Path(project_root)
+    if not (root / "project.toml").is_file():
+        raise InputError("is not a calcsheaf project (no project.toml)", file=root,
+                         fix="give the folder that holds project.toml, or make one with 'calcsheaf new PATH'")
     started = time.monotonic()
-    project, outcomes = analyse_project(root)
     target = Path(out_dir) if out_dir else root / "_site"
+    with _locked(target):
+        site_key = input_key(root, target)
+        stamp = target.parent / f".{target.name}.key"
+        previous = _up_to_date(target, stamp, site_key)
+        if previous is not None:
+            print(f"site {target} is up to date (no input changed) "
+                  f"[{time.monotonic() - started:.2f} s]", file=out)
+            return previous
+        rc, count, failed = _full_build(root, target, jobs, out, err)
+        stamp.write_text(f"{site_key} {rc}\n")
+    print(f"built {count} calc(s) into {target} in {time.monotonic() - started:.1f} s"
+          f"; {failed} failed", file=out)
+    return rc
+
+
+def _full_build(root: Path, target: Path, jobs, out, err) -> tuple[int, int, int]:
+    from ..model import PackageModel
+    from ..pipeline import cached_outcomes
+    from ..project import load_project
+    from ..software import versions
+    from . import publish
+    from .selftest import cached_selftest_files
+
+    project = load_project(root)
+    cache = Cache(root)
+    outcomes = cached_outcomes(root, cache, jobs, progress=_progress(out))
     package = PackageModel(project=project, calcs=[o.report for o in outcomes], software=versions(),
                            build_date=publish.build_date())
-    files = publish.site_files(package)
-    with _locked(target):
-        write_site(target, files)
+    files = publish.site_files(package, cached_selftest_files(), cache)
+    write_site(target, files)
     failed = [r for r in package.calcs if not r.passed]
     for r in package.calcs:
         print(f"{'PASS' if r.passed else 'FAIL'}  {r.number:<10} {r.title}", file=out)
         if r.error is not None:
             print("    " + getattr(r.error, "message", str(r.error)).replace("\n", "\n    "), file=err)
-    print(f"built {len(package.calcs)} calc(s) into {target} in {time.monotonic() - started:.1f} s"
-          f"; {len(failed)} failed", file=out)
-    return 1 if failed else 0
+    return (1 if failed else 0), len(package.calcs), len(failed)
 
 
-def _locked(target: Path):
-    target.parent.mkdir(parents=True, exist_ok=True)
-    lock = FileLock(str(target.parent / f".{target.name}.lock"))
+def _progress(out):
+    tty = hasattr(out, "isatty") and out.isatty()
+
+    def show(path: Path, stage: str) -> None:
+        text = f"  {'analysing' if stage == 'started' else 'analysed '} {path.name}"
+        print(text, end="\r" if tty else "\n", file=out, flush=True)
+    return show
+
+
+def input_key(root: Path, target: Path) -> str:
+    """SHA-256 over everything a build reads, plus the tool's code fingerprint."""
+    parts = [str(target.resolve()), os.environ.get("SOURCE_DATE_EPOCH", "")]
+    for name in WATCHED:
+        path = root / name
+        items = [path] if path.is_file() else sorted(p for p in path.rglob("*") if p.is_file()) \
+            if path.is_dir() else []
+        for item in items:
+            parts.append(item.relative_to(root).as_posix())
+            parts.append(hashlib.sha256(item.read_bytes()).hexdigest())
+    return key(*parts)
+
+
+def _up_to_date(target: Path, stamp: Path, site_key: str) -> int | None:
+    """The previous exit code when the stamp matches and every file is as SHA256SUMS says."""
     try:
-        lock.acquire(timeout=600)
-    except Timeout:
-        raise BuildError("another build of this site is still running", file=target,
-                         fix="wait for it to finish, or remove the stale .lock file") from None
-    return _Release(lock)
+        recorded, rc = stamp.read_text().split()
+        if recorded != site_key:
+            return None
+        sums = (target / "SHA256SUMS").read_text().splitlines()
+    except (OSError, ValueError):
+        return None
+    listed = set()
+    for line in sums:
+        digest, _, rel = line.partition("  ")
+        listed.add(rel)
+        try:
+            if hashlib.sha256((target / rel).read_bytes()).hexdigest() != digest:
+                return None
+        except OSError:
+            return None
+    actual = {p.relative_to(target).as_posix() for p in target.rglob("*") if p.is_file()}
+    return int(rc) if actual == listed | {"SHA256SUMS"} else None
 
 
-class _Release:
-    def __init__(self, lock):
-        self.lock = lock
+class _locked:
+    """Serialise builds of one site with a lock file beside it."""
+
+    def __init__(self, target: Path) -> None:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        self.lock = FileLock(str(target.parent / f".{target.name}.lock"))
 
     def __enter__(self):
+        try:
+            self.lock.acquire(timeout=900)
+        except Timeout:
+            raise BuildError("another build of this site is still running", file=self.lock.lock_file,
+                             fix="wait for it to finish") from None
         return self
 
     def __exit__(self, *exc):
@@ -119,8 +189,10 @@ def _exchange(a: Path, b: Path) -> bool:
     except (OSError, AttributeError):
         return False
     AT_FDCWD, RENAME_EXCHANGE = -100, 2
-    result = renameat2(AT_FDCWD, os.fsencode(a), AT_FDCWD, os.fsencode(b), RENAME_EXCHANGE)
-    return result == 0
+    return renameat2(AT_FDCWD, os.fsencode(a), AT_FDCWD, os.fsencode(b), RENAME_EXCHANGE) == 0
 
 
-__all__ = ["build", "write_site", "sha256sums", "results_json"]
+def build_calc(*args, **kwargs):
+    """One calc's files into a folder (for `issue`); see publish.build_calc."""
+    from .publish import build_calc as write_calc
+    return write_calc(*args, **kwargs)

@@ -7,10 +7,13 @@ and dependency versions.  Exit 1 when any case fails.
 
 from __future__ import annotations
 
+import hashlib
 import json
+import os
 import sys
 from pathlib import Path
 
+from ..fingerprint import code_fingerprint
 from ..render import pdf, theme
 from ..verification.selftest import SelftestReport, run_selftest
 
@@ -30,6 +33,37 @@ def selftest_files(report: SelftestReport) -> dict[str, bytes]:
              f"{FOLDER}/selftest.json": (json.dumps(data, indent=2, sort_keys=True) + "\n").encode(),
              f"{FOLDER}/selftest.pdf": pdf._write(document, {"selftest.json": json.dumps(data).encode()}, "")}
     files.update(static)
+    return files
+
+
+def cache_root() -> Path:
+    base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
+    return Path(base) / "calcsheaf"
+
+
+def cached_selftest_files() -> dict[str, bytes]:
+    """The report's files for this exact code, made once and then read from the cache."""
+    from ..pipeline import analyse_paths
+
+    folder = cache_root() / "selftest" / code_fingerprint()
+    index = folder / "files.json"
+    if index.is_file():
+        try:
+            names = json.loads(index.read_text())
+            files = {n: (folder / "files" / n).read_bytes() for n in names}
+            if all(hashlib.sha256(files[n]).hexdigest() == h for n, h in names.items()):
+                return files
+        except (OSError, ValueError, KeyError):
+            pass
+    files = selftest_files(run_selftest(analyse_paths))
+    try:
+        for name, data in files.items():
+            path = folder / "files" / name
+            path.parent.mkdir(parents=True, exist_ok=True)
+            path.write_bytes(data)
+        index.write_text(json.dumps({n: hashlib.sha256(d).hexdigest() for n, d in sorted(files.items())}))
+    except OSError:
+        pass
     return files
 
 

@@ -199,9 +199,13 @@ class QueryContext:
         a, b, c = gains
 
         def amplitude(f):
+            return float(abs(complex_output(f)))
+
+        def complex_output(f):
             w = 2 * np.pi * f
             X = frequency.response(self.linear, self.force, f)
-            return float(abs(a @ X + 1j * w * (b @ X) - w * w * (c @ X)))
+            return complex(a @ X + 1j * w * (b @ X) - w * w * (c @ X))
+        amplitude.complex = complex_output
         return amplitude
 
 

@@ -1,0 +1,85 @@
+"""Each calc is analysed in its own process under time and memory limits.
+
+One pathological calc (a runaway integration, a huge symbolic expansion)
+cannot hang or exhaust the build: its process is stopped at the limit and the
+calc fails alone with a clear message, while the rest of the project builds.
+"""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+import os
+import pickle
+import resource
+import time
+from pathlib import Path
+from typing import Callable
+
+from .errors import AnalysisError
+
+TIME_LIMIT_S = float(os.environ.get("CALCSHEAF_CALC_TIME_LIMIT", "300"))
+MEMORY_LIMIT_BYTES = int(float(os.environ.get("CALCSHEAF_CALC_MEMORY_LIMIT_GB", "4")) * 2 ** 30)
+
+
+def _child(fn: Callable, path: Path, conn) -> None:
+    try:
+        resource.setrlimit(resource.RLIMIT_AS, (MEMORY_LIMIT_BYTES, MEMORY_LIMIT_BYTES))
+    except (ValueError, OSError):
+        pass
+    try:
+        result = fn(path)
+        conn.send_bytes(pickle.dumps(result))
+    except MemoryError:
+        conn.send_bytes(pickle.dumps(_limit_error(path, "ran out of its memory limit of "
+                                                  f"{MEMORY_LIMIT_BYTES / 2 ** 30:g} GiB")))
+    finally:
+        conn.close()
+
+
+def _limit_error(path: Path, what: str) -> AnalysisError:
+    return AnalysisError(f"the analysis {what} and was stopped", file=path,
+                         fix="simplify the calc (fewer coordinates, shorter duration, fewer points) "
+                             "or raise CALCSHEAF_CALC_TIME_LIMIT / CALCSHEAF_CALC_MEMORY_LIMIT_GB")
+
+
+def run_isolated(fn: Callable, paths: list[Path], jobs: int, on_failure: Callable,
+                 progress: Callable[[Path, str], None] | None = None) -> list:
+    """fn(path) for every path, at most `jobs` at once, each in its own process.
+
+    A process that dies, overruns TIME_LIMIT_S or exhausts its memory gives
+    on_failure(path, error) instead of a result.  Results keep the order of `paths`.
+    """
+    ctx = mp.get_context("fork")
+    results: dict[int, object] = {}
+    pending = list(enumerate(paths))
+    running: dict[int, tuple] = {}
+    while pending or running:
+        while pending and len(running) < max(1, jobs):
+            i, path = pending.pop(0)
+            receive, send = ctx.Pipe(duplex=False)
+            proc = ctx.Process(target=_child, args=(fn, path, send), daemon=True)
+            proc.start()
+            send.close()
+            running[i] = (proc, receive, time.monotonic(), path)
+            if progress:
+                progress(path, "started")
+        for i, (proc, receive, started, path) in list(running.items()):
+            if receive.poll(0.02):
+                try:
+                    results[i] = pickle.loads(receive.recv_bytes())
+                except (EOFError, OSError, pickle.UnpicklingError):
+                    results[i] = on_failure(path, _limit_error(path, "process ended unexpectedly"))
+                proc.join()
+            elif not proc.is_alive():
+                results[i] = on_failure(path, _limit_error(path, f"process ended (exit code {proc.exitcode})"))
+            elif time.monotonic() - started > TIME_LIMIT_S:
+                proc.kill()
+                proc.join()
+                results[i] = on_failure(path, _limit_error(path, f"exceeded its time limit of {TIME_LIMIT_S:g} s"))
+            else:
+                continue
+            receive.close()
+            del running[i]
+            if progress:
+                progress(path, "done")
+    return [results[i] for i in range(len(paths))]
