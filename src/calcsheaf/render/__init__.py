@@ -1,0 +1,1 @@
+"""Writers: HTML, PDF and JSON from the package model; they never compute."""
