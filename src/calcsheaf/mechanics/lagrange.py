@@ -58,11 +58,6 @@ class Derivation:
         """∂L/∂t at fixed q, q̇."""
         return sp.diff(self.L, TIME)
 
-    @property
-    def natural(self) -> bool:
-        """True when h = T + V: T a homogeneous quadratic in q̇ and L free of t."""
-        return sp.expand(self.energy_function - self.T - self.V) == 0 and not self.L.has(TIME)
-
 
 def point_force_Q(spec: CalcSpec, q: tuple[sp.Symbol, ...]) -> list[sp.Expr]:
     """Q_j = Σ_k F_k · ∂r_k/∂q_j by virtual work."""
