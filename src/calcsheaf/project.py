@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 from .calcfile.loader import did_you_mean
@@ -51,6 +52,7 @@ def load_project(root: Path) -> ProjectInfo:
     if paper not in PAPERS:
         problem("project.paper", f"paper '{paper}' is not A4 or Letter", 'write paper = "A4" or "Letter"')
     people = _people(data.get("person", []), problem)
+    problems.extend(template_problems(root))
     if problems:
         raise ProblemList(problems)
     return ProjectInfo(number=block["number"], name=block["name"], root=root,
@@ -82,15 +84,71 @@ def _people(rows, problem) -> tuple[Person, ...]:
 
 
 def calc_files(root: Path) -> list[Path]:
-    """The calc files of a project, sorted; symlinks that leave the project are refused."""
+    """The calc files of a project, sorted; files that resolve outside the project are refused."""
     folder = Path(root) / "calcs"
     if not folder.is_dir():
         raise InputError("has no calcs/ folder", file=root, fix="put the calc files under PROJECT/calcs/*.toml")
     files = sorted(folder.glob("*.toml"))
     real_root = Path(root).resolve()
-    for f in files:
+    for f in [folder, *files]:
         target = f.resolve()
-        if f.is_symlink() and real_root not in target.parents:
+        if target != real_root and real_root not in target.parents:
             raise InputError(f"is a link to {target}, outside the project", file=f,
                              fix="copy the calc into the project instead of linking to it")
+    if not files:
+        others = sorted(p.name for p in folder.iterdir() if not p.name.startswith("."))
+        hint = f" (found {', '.join(others[:5])}: a calc file's name must end in .toml)" if others else ""
+        raise InputError(f"has no calc files{hint}", file=folder,
+                         fix="add calc files named calcs/<name>.toml")
     return files
+
+
+_TEMPLATE_REFERENCE = re.compile(r"{%-?\s*(?:include|import|extends|from)\s+(['\"])(?P<name>[^'\"]*)\1")
+_TEMPLATE_TAG = re.compile(r"({{.*?}}|{%.*?%})", re.DOTALL)
+_ATTR_FILTER = re.compile(r"\|\s*attr\s*\(")
+
+
+def template_problems(root: Path) -> list[InputError]:
+    """Problems of PROJECT/templates/: links leaving the project, templates naming files
+    outside the theme, or reaching into Python internals (names with '__')."""
+    folder = Path(root) / "templates"
+    if not folder.is_dir():
+        return []
+    real_root = Path(root).resolve()
+    problems = []
+    for path in [folder, *sorted(folder.rglob("*"))]:
+        target = path.resolve()
+        if target != real_root and real_root not in target.parents:
+            problems.append(InputError(f"is a link to {target}, outside the project", file=path,
+                                       fix="copy the file into the project's templates/ folder"))
+        elif path.is_file() and path.suffix in (".j2", ".html", ".css", ".txt", ".svg"):
+            problems.extend(_template_text_problems(path))
+    return problems
+
+
+def _template_text_problems(path: Path) -> list[InputError]:
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        return [InputError(f"cannot be read as UTF-8 text ({exc})", file=path,
+                           fix="save the template with UTF-8 encoding")]
+    problems = []
+    for match in _TEMPLATE_REFERENCE.finditer(text):
+        name = match.group("name")
+        if name.startswith(("/", "\\")) or ".." in name.replace("\\", "/").split("/") or ":" in name:
+            problems.append(InputError(
+                f"refers to '{name}', outside the theme", file=path, line=_line_of(text, match.start()),
+                fix="name templates by their path inside templates/, e.g. 'macros.html.j2'"))
+    for match in _TEMPLATE_TAG.finditer(text):
+        tag = match.group(0)
+        if "__" in tag or _ATTR_FILTER.search(tag):
+            shown = tag if len(tag) <= 60 else tag[:57] + "..."
+            problems.append(InputError(
+                f"'{shown}' reaches into Python internals (a name with '__' or the attr filter)",
+                file=path, line=_line_of(text, match.start()),
+                fix="use only the values the theme passes to templates (calc, project, ...)"))
+    return problems
+
+
+def _line_of(text: str, index: int) -> int:
+    return text.count("\n", 0, index) + 1

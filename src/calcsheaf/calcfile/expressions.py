@@ -50,6 +50,7 @@ QUERY_FUNCTIONS = {
     "frf_peak_frequency": (1, "response"),
 }
 QUERY_NAMES = frozenset(QUERY_FUNCTIONS)
+_FUNCTION_LIST = ", ".join(sorted(MATH_FUNCTIONS) + ["dot", "ddot"])
 RESERVED_NAMES = frozenset({"t", "pi", "dot", "ddot"} | set(MATH_FUNCTIONS) | QUERY_NAMES)
 
 
@@ -98,9 +99,17 @@ class Scope:
 
 @dataclass(frozen=True)
 class Where:
+    """Where a value sits: file, line, key path, and the file column of its first character."""
     file: str | None = None
     line: int | None = None
     key: str | None = None
+    column: int | None = None
+
+    def at(self, offset: int | None) -> int | None:
+        """File column of character `offset` (1-based) of the value; None when unknown."""
+        if self.column is None or offset is None:
+            return None
+        return self.column + offset - 1
 
 
 def parse_expression(text, scope: Scope, where: Where = Where()) -> sp.Expr:
@@ -114,18 +123,26 @@ def parse_expression(text, scope: Scope, where: Where = Where()) -> sp.Expr:
                      "split it into named outputs or parameters")
     if not text.strip():
         raise _error(where, "expression is empty", 'write an expression, or "0"')
+    lead = len(text) - len(text.lstrip())
     try:
         tree = ast.parse(text.strip(), mode="eval")
     except SyntaxError as exc:
-        col = exc.offset
-        raise _error(where, f"cannot read the expression: {exc.msg} (column {col})",
+        offset = lead + exc.offset if exc.offset else None
+        raise _error(where, f"cannot read the expression: {exc.msg}{_character(where, offset)}",
                      "check the brackets and operators; powers are written **",
-                     column=col) from None
+                     column=where.at(offset)) from None
     except (RecursionError, MemoryError, ValueError):
         raise _error(where, "expression is nested too deeply",
                      "simplify it or split it into parameters") from None
     _check_size(tree, where)
-    return _Converter(scope, where, text).convert(tree.body, depth=0)
+    return _Converter(scope, where, text.strip(), lead).convert(tree.body, depth=0)
+
+
+def _character(where: Where, offset: int | None) -> str:
+    """' (character N of the expression)' when the file column is unknown, else ''."""
+    if offset is None or where.at(offset) is not None:
+        return ""
+    return f" (character {offset} of the expression)"
 
 
 def _check_size(tree: ast.AST, where: Where) -> None:
@@ -141,31 +158,35 @@ def _error(where: Where, problem: str, fix: str | None = None,
                            column=column, fix=fix)
 
 
-def _suggest(name: str, candidates) -> str:
+def _close(name: str, candidates) -> str | None:
+    """The candidate closest to `name`, if any is close."""
     close = difflib.get_close_matches(name, sorted(candidates), n=1)
-    return f"did you mean '{close[0]}'?" if close else ""
+    return close[0] if close else None
 
 
 class _Converter:
     _BINOPS = {ast.Add: "+", ast.Sub: "-", ast.Mult: "*", ast.Div: "/", ast.Pow: "**"}
 
-    def __init__(self, scope: Scope, where: Where, text: str) -> None:
+    def __init__(self, scope: Scope, where: Where, text: str, lead: int = 0) -> None:
         self.scope = scope
         self.where = where
         self.text = text
+        self.lead = lead
 
-    def fail(self, node: ast.AST, problem: str, fix: str | None = None):
+    def fail(self, node: ast.AST, problem: str, fix: str | None = None, *, quote: bool = True):
+        """Raise ExpressionError at `node`; `quote` adds the offending text when it is short."""
         col = getattr(node, "col_offset", None)
-        col = col + 1 if col is not None else None
-        token = ast.get_source_segment(self.text.strip(), node) if hasattr(node, "lineno") else None
-        if token and len(token) <= 60:
-            problem = f"{problem} at '{token}' (column {col})"
-        raise _error(self.where, problem, fix, column=col)
+        offset = self.lead + col + 1 if col is not None else None
+        token = ast.get_source_segment(self.text, node) if hasattr(node, "lineno") else None
+        if quote and token:
+            problem += f" in '{token}'" if len(token) <= 60 else f" in '{token[:57]}...'"
+        problem += _character(self.where, offset)
+        raise _error(self.where, problem, fix, column=self.where.at(offset))
 
     def convert(self, node: ast.AST, depth: int, in_series: bool = False) -> sp.Expr:
         if depth > MAX_DEPTH:
             self.fail(node, f"expression is nested more than {MAX_DEPTH} levels deep",
-                      "simplify it or split it into parameters")
+                      "simplify it or split it into parameters", quote=False)
         if isinstance(node, ast.Constant):
             return self._constant(node)
         if isinstance(node, ast.Name):
@@ -209,13 +230,19 @@ class _Converter:
         allowed = self.scope.names | (self.scope.series_names if in_series else frozenset())
         if name in allowed:
             return symbol(name)
-        hint = _suggest(name, allowed | {"pi"})
         if name in self.scope.series_names:
-            hint = f"'{name}' is a time history: use it inside a query such as peak({name})"
-        elif name in MATH_FUNCTIONS or name in QUERY_NAMES:
-            hint = f"'{name}' is a function: call it, e.g. {name}(...)"
+            self.fail(node, f"'{name}' is a time history and cannot stand alone in {self.scope.what}",
+                      f"use it inside a query such as peak({name})", quote=False)
+        if name in MATH_FUNCTIONS or name in QUERY_NAMES:
+            self.fail(node, f"'{name}' is a function but is used as a name in {self.scope.what}",
+                      f"call it, e.g. {name}(...)", quote=False)
+        close = _close(name, allowed | {"pi"})
+        if close:
+            self.fail(node, f"unknown name '{name}' in {self.scope.what} (did you mean '{close}'?)",
+                      f"write '{close}', or define {name} under [parameters]", quote=False)
         self.fail(node, f"unknown name '{name}' in {self.scope.what}",
-                  hint or "define it under [parameters] (or as a coordinate)")
+                  f"define {name} under [parameters] (or as a coordinate), or correct the name",
+                  quote=False)
 
     def _binop(self, node: ast.BinOp, depth: int, in_series: bool) -> sp.Expr:
         left = self.convert(node.left, depth + 1, in_series)
@@ -250,7 +277,8 @@ class _Converter:
 
     def _call(self, node: ast.Call, depth: int, in_series: bool) -> sp.Expr:
         if not isinstance(node.func, ast.Name):
-            self.fail(node, "only the listed functions may be called", "call e.g. sin(x)")
+            self.fail(node, "only the functions of the expression language may be called",
+                      f"use plain calls such as sin(x); the functions are {_FUNCTION_LIST}")
         if node.keywords:
             self.fail(node, "keyword arguments are not allowed", "pass arguments by position")
         name = node.func.id
@@ -275,8 +303,12 @@ class _Converter:
         candidates = set(MATH_FUNCTIONS) | {"dot", "ddot"}
         if self.scope.queries:
             candidates |= QUERY_NAMES
+        close = _close(name, candidates)
+        if close:
+            self.fail(node, f"unknown function '{name}' (did you mean '{close}'?)",
+                      f"write {close}(...)", quote=False)
         self.fail(node, f"unknown function '{name}'",
-                  _suggest(name, candidates) or "see the list of functions in the docs")
+                  f"use one of the functions {_FUNCTION_LIST}", quote=False)
 
     def _derivative(self, node: ast.Call, name: str, in_series: bool) -> sp.Expr:
         allowed = self.scope.accelerations if name == "ddot" else self.scope.velocities
@@ -290,9 +322,9 @@ class _Converter:
             self.fail(node, f"{name}() takes one coordinate name", f"write e.g. {name}(x)")
         coord = node.args[0].id
         if coord not in self.scope.coordinates:
-            hint = _suggest(coord, self.scope.coordinates)
-            self.fail(node, f"'{coord}' is not a coordinate",
-                      hint or "declare it under [coordinates]")
+            close = _close(coord, self.scope.coordinates)
+            self.fail(node, f"'{coord}' is not a coordinate" + (f" (did you mean '{close}'?)" if close else ""),
+                      f"write {name}({close})" if close else f"declare {coord} under [coordinates]")
         return velocity(coord) if name == "dot" else acceleration(coord)
 
     def _query(self, node: ast.Call, name: str, depth: int) -> sp.Expr:

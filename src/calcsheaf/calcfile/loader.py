@@ -18,7 +18,8 @@ from ..errors import CalcsheafError, InputError, ProblemList
 from ..model import Assumption, Reference
 from . import spec as S
 from .expressions import (RESERVED_NAMES, TIME, Scope, Where, parse_expression, velocity)
-from .toml_source import read_toml
+from .text_links import local_targets
+from .toml_source import read_toml, value_column
 from .units import (DIMENSIONLESS, DimensionChecker, describe, dimension_of, parse_quantity,
                     parse_unit, si_factor, si_unit_text, to_si, ureg)
 
@@ -55,9 +56,21 @@ ARRAYS = {"assumption", "reference", "point_force", "constraint", "output", "res
           "criterion", "crosscheck"}
 
 
-def did_you_mean(name: str, candidates) -> str:
+def _close(name: str, candidates) -> str | None:
     close = difflib.get_close_matches(name, sorted(candidates), n=1)
-    return f" (did you mean '{close[0]}'?)" if close else ""
+    return close[0] if close else None
+
+
+def did_you_mean(name: str, candidates) -> str:
+    """' (did you mean 'x'?)' when a candidate is close to `name`, else ''."""
+    close = _close(name, candidates)
+    return f" (did you mean '{close}'?)" if close else ""
+
+
+def _header(key: str) -> str:
+    """The TOML header of a key path: 'calc' -> [calc], 'output[2]' -> [[output]]."""
+    table = key.split(".")[0]
+    return f"[[{table.split('[')[0]}]]" if "[" in table else f"[{table}]"
 
 
 def load_calc(path: Path) -> S.CalcSpec:
@@ -74,6 +87,9 @@ class _CalcLoader:
         self.lines = lines
         self.problems: list[CalcsheafError] = []
         self.dims: dict[str, Any] = {"t": ureg.second.dimensionality}
+        # declared names whose value or unit was refused: known to expressions, of any
+        # dimension, so that one bad unit is reported once and not again at every use
+        self.broken: set[str] = set()
 
     # ---- reporting ---------------------------------------------------------
     def where(self, key: str) -> Where:
@@ -82,7 +98,9 @@ class _CalcLoader:
         while probe and line is None:
             line = self.lines.get(probe)
             probe = probe.rpartition(".")[0]
-        return Where(file=str(self.path), line=line, key=key)
+        exact = self.lines.get(key) is not None
+        column = value_column(self.text, line, key.rpartition(".")[2].strip('"')) if exact else None
+        return Where(file=str(self.path), line=line, key=key, column=column)
 
     def problem(self, key: str, problem: str, fix: str) -> None:
         w = self.where(key)
@@ -97,17 +115,38 @@ class _CalcLoader:
             self.problems.append(exc)
         return default
 
+    def _broken(self, table: str) -> frozenset[str]:
+        """Names declared under [table] whose value or unit was refused."""
+        prefix = f"{table}."
+        return frozenset(k[len(prefix):] for k in self.broken if k.startswith(prefix))
+
     # ---- generic shape checks ----------------------------------------------
     def table(self, key: str, value, required: set[str], optional: set[str]) -> dict:
+        """Check a table's keys: unknown keys (with "did you mean") and missing required keys.
+
+        A misspelt required key is reported once, as unknown with its correction;
+        an absent table (None) gives no problems here (the caller reports it).
+        """
+        if value is None:
+            return {}
+        header = _header(key)
         if not isinstance(value, dict):
             self.problem(key, f"must be a table, got {_kind(value)}",
-                         f"write it as [{key.split('[')[0]}] with keys below it")
+                         f"write it as {header} with keys below it")
             return {}
-        for name in sorted(set(value) - required - optional):
-            self.problem(f"{key}.{name}", f"unknown key '{name}'{did_you_mean(name, required | optional)}",
-                         f"allowed keys in {key.split('[')[0]}: {', '.join(sorted(required | optional))}")
-        for name in sorted(required - set(value)):
-            self.problem(key, f"missing key '{name}'", f"add {name} = ... to {key.split('[')[0]}")
+        allowed = required | optional
+        corrected = set()
+        for name in sorted(set(value) - allowed):
+            close = _close(name, allowed - set(value))
+            if close:
+                corrected.add(close)
+                self.problem(f"{key}.{name}", f"unknown key '{name}' (did you mean '{close}'?)",
+                             f"rename '{name}' to '{close}'")
+            else:
+                self.problem(f"{key}.{name}", f"unknown key '{name}'",
+                             f"remove it; the keys of {header} are {', '.join(sorted(allowed))}")
+        for name in sorted(required - set(value) - corrected):
+            self.problem(key, f"missing key '{name}'", f'add {name} = "..." under {header}')
         return value
 
     def rows(self, name: str) -> list[tuple[str, dict]]:
@@ -131,6 +170,28 @@ class _CalcLoader:
             return default
         return value
 
+    def markdown(self, key: str, value, default: str = "") -> str:
+        """Markdown text; links and images to local files are refused (see text_links)."""
+        text = self.string(key, value, default)
+        for kind, target in local_targets(text or ""):
+            w = self.where(key)
+            line, column = self._find(target, w.line)
+            self.problems.append(InputError(
+                f"{kind} to a local file '{target}' in Markdown text: a package may only link to "
+                "web addresses", file=w.file, line=line, column=column, key=key,
+                fix="link to an https:// address, or cite the document as a [[reference]] "
+                    "and attach it to the package by hand"))
+        return text
+
+    def _find(self, target: str, start: int | None) -> tuple[int | None, int | None]:
+        """Line and column of the first `target` at or after line `start`."""
+        lines = self.text.splitlines()
+        for number in range(start or 1, len(lines) + 1):
+            column = lines[number - 1].find(target)
+            if column >= 0:
+                return number, column + 1
+        return start, None
+
     def boolean(self, key: str, value, default: bool) -> bool:
         if value is None:
             return default
@@ -146,7 +207,12 @@ class _CalcLoader:
         ok = isinstance(value, int) if integer else isinstance(value, (int, float))
         if isinstance(value, bool) or not ok or (positive and value <= 0):
             kind = "a positive whole number" if integer else "a positive number"
-            self.problem(key, f"must be {kind}, got {value!r}", f"write {kind}, e.g. {4000 if integer else 1e-6}")
+            short = key.rpartition(".")[2]
+            if isinstance(value, str) and _is_number(value):
+                fix = f"remove the quotes: {short} = {value.strip()}"
+            else:
+                fix = f"write {kind}, e.g. {short} = {4000 if integer else 1e-6}"
+            self.problem(key, f"must be {kind}, got {_kind(value)} {value!r}", fix)
             return default
         return value
 
@@ -190,12 +256,20 @@ class _CalcLoader:
 
     # ---- the calc --------------------------------------------------------------
     def load(self) -> S.CalcSpec:
+        corrected = set()
         for name in sorted(set(self.data) - set(TOP_KEYS)):
-            self.problem(name, f"unknown table or key '{name}'{did_you_mean(name, TOP_KEYS)}",
-                         "remove it or correct its name")
+            close = _close(name, set(TOP_KEYS) - set(self.data))
+            if close:
+                corrected.add(close)
+                self.problem(name, f"unknown table '{name}' (did you mean '{close}'?)",
+                             f"rename [{name}] to [{close}]")
+            else:
+                self.problem(name, f"unknown table or key '{name}'",
+                             f"remove it; the tables of a calc file are {', '.join(sorted(TOP_KEYS))}")
         for name, required in TOP_KEYS.items():
-            if required and name not in self.data:
-                self.problem(name, f"missing [{name}] table", f"add a [{name}] table; see the calc-file reference")
+            if required and name not in self.data and name not in corrected:
+                self.problem(name, f"missing [{name}] table",
+                             "add it; every calc file needs [calc], [coordinates], [energy] and [initial]")
         calc = self.attempt(self.calc_block, {})
         ids: dict[str, str] = {}
         assumptions = self.attempt(lambda: self.assumptions(ids), ())
@@ -203,8 +277,8 @@ class _CalcLoader:
         names: dict[str, str] = {}
         coordinates = self.attempt(lambda: self.coordinates(names), ())
         parameters = self.attempt(lambda: self.parameters(names, ids), ())
-        coord_names = frozenset(c.name for c in coordinates)
-        param_names = frozenset(p.name for p in parameters)
+        coord_names = frozenset(c.name for c in coordinates) | self._broken("coordinates")
+        param_names = frozenset(p.name for p in parameters) | self._broken("parameters")
         energy = self.attempt(lambda: self.energy(param_names, coord_names), None)
         forces = self.attempt(lambda: self.generalized_forces(param_names, coordinates), ())
         point_forces = self.attempt(lambda: self.point_forces(param_names, coord_names), ())
@@ -233,7 +307,7 @@ class _CalcLoader:
             crosschecks=crosschecks, lines=self.lines)
 
     def calc_block(self) -> dict:
-        block = self.table("calc", self.data.get("calc", {}), *TABLE_KEYS["calc"])
+        block = self.table("calc", self.data.get("calc"), *TABLE_KEYS["calc"])
         number = self.string("calc.number", block.get("number"))
         if number is not None and not re.match(r"^[A-Za-z0-9][A-Za-z0-9._-]*$", number):
             self.problem("calc.number", f"calc number '{number}' cannot name a folder",
@@ -245,7 +319,7 @@ class _CalcLoader:
                          'write e.g. hazards = ["suspended_load"]')
             hazards = []
         return {"number": number or "?", "title": self.string("calc.title", block.get("title"), "?"),
-                "purpose": self.string("calc.purpose", block.get("purpose"), ""),
+                "purpose": self.markdown("calc.purpose", block.get("purpose"), ""),
                 "revision": self.string("calc.revision", block.get("revision"), "A"),
                 "hazards": tuple(sorted(set(hazards)))}
 
@@ -254,8 +328,8 @@ class _CalcLoader:
         for key, row in self.rows("assumption"):
             ident = self.string(f"{key}.id", row.get("id"))
             self._register_id(key, ident, ids)
-            out.append(Assumption(id=ident or "?", text=self.string(f"{key}.text", row.get("text"), ""),
-                                  basis=self.string(f"{key}.basis", row.get("basis"), ""),
+            out.append(Assumption(id=ident or "?", text=self.markdown(f"{key}.text", row.get("text")),
+                                  basis=self.markdown(f"{key}.basis", row.get("basis")),
                                   open=self.boolean(f"{key}.open", row.get("open"), False)))
         return tuple(out)
 
@@ -264,7 +338,7 @@ class _CalcLoader:
         for key, row in self.rows("reference"):
             ident = self.string(f"{key}.id", row.get("id"))
             self._register_id(key, ident, ids)
-            out.append(Reference(id=ident or "?", text=self.string(f"{key}.text", row.get("text"), "")))
+            out.append(Reference(id=ident or "?", text=self.markdown(f"{key}.text", row.get("text"))))
         return tuple(out)
 
     def _register_id(self, key: str, ident: str | None, ids: dict[str, str]) -> None:
@@ -292,6 +366,9 @@ class _CalcLoader:
             unit = self.attempt(lambda: parse_unit(self.string(f"{key}.unit", row["unit"], "?"),
                                                    self.where(f"{key}.unit")))
             if unit is None:
+                self.broken.add(key)
+                for symbol_name in (name, f"dot({name})", f"ddot({name})"):
+                    self.dims[symbol_name] = None
                 continue
             dim = unit.dimensionality
             self.dims[name] = dim
@@ -322,6 +399,8 @@ class _CalcLoader:
                              "name the id of an [[assumption]] or [[reference]] of this calc")
             quantity = self.attempt(lambda: self.quantity(key, row["value"]))
             if quantity is None:
+                self.broken.add(key)
+                self.dims[name] = None
                 continue
             self.dims[name] = quantity.dimensionality
             out.append(S.Parameter(name=name, given=str(row["value"]), value=to_si(quantity),
@@ -336,7 +415,7 @@ class _CalcLoader:
                      velocities=velocities, accelerations=accelerations, what=what)
 
     def energy(self, params, coords):
-        block = self.table("energy", self.data.get("energy", {}), *TABLE_KEYS["energy"])
+        block = self.table("energy", self.data.get("energy"), *TABLE_KEYS["energy"])
         energy_dim = ureg.joule.dimensionality
         power_dim = ureg.watt.dimensionality
         kinetic = self.attempt(lambda: self.expr(
@@ -445,7 +524,8 @@ class _CalcLoader:
         for c in coordinates:
             wanted[c.name] = c.dimension
             wanted[f"dot({c.name})"] = c.dimension / ureg.second.dimensionality
-        for name in sorted(set(block) - set(wanted)):
+        skipped = {n for b in self._broken("coordinates") for n in (b, f"dot({b})")}
+        for name in sorted(set(block) - set(wanted) - skipped):
             self.problem(f"initial.{name}", f"'{name}' is not a coordinate or velocity"
                          f"{did_you_mean(name, wanted)}", 'give values for each coordinate q and "dot(q)"')
         out = []
@@ -640,6 +720,14 @@ class _CalcLoader:
                 continue
             out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance))
         return tuple(out)
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
 
 
 def _kind(value) -> str:

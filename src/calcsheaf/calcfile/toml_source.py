@@ -17,7 +17,27 @@ _KEY = r'(?:"(?P<dq>[^"]*)"|\'(?P<sq>[^\']*)\'|(?P<bare>[A-Za-z0-9_\-]+))'
 _KEY_LINE = re.compile(r"^\s*" + _KEY + r"\s*=")
 _INLINE_KEY = re.compile(r"[{,]\s*" + _KEY + r"\s*=")
 _TOML_POSITION = re.compile(r"\(at line (\d+), column (\d+)\)")
+_TOML_END = "(at end of document)"
 MAX_FILE_BYTES = 1_000_000
+
+# tomllib's wording -> what to do about it; the first match wins.
+_SYNTAX_FIXES = (
+    ("Illegal character '\\n'", "close the quoted text on the same line with \" "
+     '(use """...""" for text over several lines)'),
+    ("Unterminated string", 'close the quoted text with its matching quote'),
+    ("Expected \"'\"", "close the quoted text with its matching '"),
+    ("Expected newline or end of document", 'put a value with a unit in quotes, e.g. k = "1.2 MN/m", '
+     "and write one key = value per line"),
+    ("Invalid value", 'write a value after "=": text in quotes, a number, true/false, [...] or { ... }'),
+    ("Cannot overwrite a value", "a key may appear only once in a table: remove or rename the repeated key"),
+    ("Cannot declare", "a [table] may appear only once (use [[name]] for repeated entries): "
+     "merge the two tables"),
+    ("Expected ']'", "close the table header with ], e.g. [energy]"),
+    ("Unclosed inline table", "close the inline table with } on the same line"),
+    ("Expected '=' after a key", "write key = value"),
+    ("Unescaped '\\'", "write a backslash as \\\\ or use single quotes around the text"),
+)
+_GENERIC_FIX = "correct the TOML syntax at that place (quotes, brackets, '=')"
 
 
 def _key_name(match: re.Match) -> str:
@@ -75,11 +95,41 @@ def read_toml(path: Path) -> tuple[str, dict, dict[str, int]]:
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        message = str(exc)
-        position = _TOML_POSITION.search(message)
-        line = int(position.group(1)) if position else None
-        column = int(position.group(2)) if position else None
-        problem = _TOML_POSITION.sub("", message).strip()
-        raise InputError(f"is not valid TOML: {problem}", file=path, line=line, column=column,
-                         fix="correct the TOML syntax at that place (quotes, brackets, '=')") from None
+        raise syntax_error(path, text, str(exc)) from None
     return text, data, key_lines(text)
+
+
+def syntax_error(path: Path, text: str, message: str) -> InputError:
+    """InputError of a tomllib message, with its line and column and a fix for the usual slips."""
+    position = _TOML_POSITION.search(message)
+    line = int(position.group(1)) if position else None
+    column = int(position.group(2)) if position else None
+    if line is None and _TOML_END in message:
+        line = max(1, len(text.splitlines()))
+    problem = _TOML_POSITION.sub("", message).replace(_TOML_END, "at the end of the file").strip()
+    repeated = _key_on_line(text, line) if "overwrite" in problem else None
+    if repeated:
+        problem += f" ('{repeated}' is given twice)"
+    fix = next((f for pattern, f in _SYNTAX_FIXES if pattern in problem), _GENERIC_FIX)
+    return InputError(f"is not valid TOML: {problem}", file=path, line=line, column=column, fix=fix)
+
+
+def _key_on_line(text: str, line: int | None) -> str | None:
+    lines = text.splitlines()
+    match = _KEY_LINE.match(lines[line - 1]) if line and line <= len(lines) else None
+    return _key_name(match) if match else None
+
+
+def value_column(text: str, line: int | None, key: str) -> int | None:
+    """1-based column of the first character inside the quoted value of `key` on `line`.
+
+    `key` is the last part of a key path ("kinetic", "expr").  None when the value
+    is not a one-line quoted string there (the caller then reports no column).
+    """
+    lines = text.splitlines()
+    if line is None or not 1 <= line <= len(lines):
+        return None
+    pattern = re.compile(r"(?:^|[{,\s])(?:\"" + re.escape(key) + r"\"|'" + re.escape(key) + r"'|"
+                         + re.escape(key) + r")\s*=\s*(\"(?!\"\")|')")
+    match = pattern.search(lines[line - 1])
+    return match.end() + 1 if match else None

@@ -7,6 +7,7 @@ which takes whatever dimension its context needs.
 
 from __future__ import annotations
 
+import difflib
 import math
 from functools import lru_cache
 
@@ -35,17 +36,34 @@ _NAMED = {
 _NAMED_UNITS = ["N", "J", "W", "Pa", "N/m", "N*s/m", "kg*m^2", "m/s^2", "m/s"]
 
 
+_UNIT_FIX = "use a unit such as m, mm, kg, N, kN, kN*s/m, N*m, rad, deg, Hz, rpm; powers are ^ or **"
+_COMMON_UNITS = ("m", "mm", "cm", "km", "kg", "g", "t", "s", "ms", "min", "h", "N", "kN", "MN",
+                 "Pa", "kPa", "MPa", "GPa", "J", "kJ", "W", "kW", "rad", "deg", "Hz", "rpm",
+                 "revolution", "tonne", "degree", "radian", "newton", "meter", "metre", "second")
+
+
+def _unit_hint(names) -> str:
+    """' ('mx' is not a unit; did you mean 'mm'?)' for the first undefined name."""
+    name = next(iter(names), None) if isinstance(names, (list, tuple)) else names
+    if not name:
+        return ""
+    close = difflib.get_close_matches(str(name), _COMMON_UNITS, n=1)
+    return f" ('{name}' is not a unit" + (f"; did you mean '{close[0]}'?)" if close else ")")
+
+
 def parse_unit(text: str, where: Where = Where()) -> pint.Unit:
     """A pint unit from its text, e.g. 'kN', 'mm', '1' (dimensionless)."""
     if text in ("", "1", "-"):
         return ureg.dimensionless
     try:
         unit = ureg.Unit(text)
-    except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError,
-            AttributeError, TypeError, ValueError, SyntaxError, AssertionError) as exc:
-        raise UnitError(f"unknown unit '{text}' ({_short(exc)})", file=where.file,
-                        line=where.line, key=where.key,
-                        fix="use a unit such as m, mm, kg, N, kN*s/m, rad, deg, Hz") from None
+    except pint.errors.UndefinedUnitError as exc:
+        raise UnitError(f"unknown unit '{text}'{_unit_hint(exc.unit_names)}", file=where.file,
+                        line=where.line, key=where.key, fix=_UNIT_FIX) from None
+    except (pint.errors.DefinitionSyntaxError, AttributeError, TypeError, ValueError,
+            SyntaxError, AssertionError, RecursionError) as exc:
+        raise UnitError(f"cannot read the unit '{text}' ({_short(exc)})", file=where.file,
+                        line=where.line, key=where.key, fix=_UNIT_FIX) from None
     if not ureg.Quantity(1, unit)._is_multiplicative:
         raise UnitError(f"offset unit '{text}' is not supported", file=where.file,
                         line=where.line, key=where.key, fix="use an absolute unit such as K")
@@ -101,12 +119,21 @@ def si_unit_text(dim) -> str:
     for name in _NAMED_UNITS:
         if _named_dimension(name) == dim:
             return name
-    num = [f"{_BASE_SYMBOLS[k]}" + (f"^{v}" if v != 1 else "") for k, v in sorted(dim.items()) if v > 0]
-    den = [f"{_BASE_SYMBOLS[k]}" + (f"^{-v}" if v != -1 else "") for k, v in sorted(dim.items()) if v < 0]
+    items = sorted(dim.items(), key=lambda kv: list(_BASE_SYMBOLS).index(kv[0]))
+    num = [_BASE_SYMBOLS[k] + _power(v) for k, v in items if v > 0]
+    den = [_BASE_SYMBOLS[k] + _power(-v) for k, v in items if v < 0]
     text = "*".join(num) or "1"
     if den:
         text += "/" + ("/".join(den) if len(den) == 1 else "/".join(den))
     return text
+
+
+def _power(exponent) -> str:
+    """'^2' for 2, '^0.5' for 1/2 (a form pint reads back), '' for 1."""
+    if exponent == 1:
+        return ""
+    value = float(exponent)
+    return f"^{int(value)}" if value.is_integer() else f"^{value:g}"
 
 
 @lru_cache(maxsize=None)
@@ -148,8 +175,8 @@ class DimensionChecker:
         """Raise DimensionError unless `expr` has dimension `expected`."""
         dim = self.infer(expr)
         if not same(dim, expected):
-            self.fail(f"{what} must be {describe(expected)}, but it is {describe(dim)}",
-                      "check the units of the parameters and every term")
+            self.fail(f"{what} must be {describe(expected)}, but '{_term(expr)}' is {describe(dim)}",
+                      f"check the units of the parameters in it; each term must be {describe(expected)}")
 
     def infer(self, expr):
         if expr.is_Number:
