@@ -335,3 +335,22 @@ def test_every_step_is_kept_as_data(tmp_path):
     values = [s.expr for s in d.steps if s.coordinate == "x"]
     assert [sp.simplify(v) for v in values] == [m * xd, m * xdd, -k * x, c * xd, 0]
     assert sp.simplify(d.equations[0].expr - (m * xdd + c * xd + k * x)) == 0
+
+
+def test_one_sided_spring_by_step_derives_without_dirac_delta(tmp_path, rng):
+    """Regression: d(x² step(x))/dx gave x² DiracDelta(x) terms, which the generated code
+    could not evaluate (NameError).  Derivatives are taken almost everywhere."""
+    spec, d = derivation_of(tmp_path, calc(
+        "D-11", 'm = "2 kg"\n    k = "900 N/m"\n    c = "3 N*s/m"',
+        'x = { unit = "m" }',
+        'kinetic = "m/2*dot(x)**2"\n    potential = "k/2*x**2*step(x)"\n'
+        '    dissipation = "c/2*dot(x)**2*step(dot(x))"',
+        'x = "0.01 m"\n    "dot(x)" = "0 m/s"'))
+    assert not d.f.has(sp.DiracDelta) and not d.energy_function.has(sp.DiracDelta)
+    p = spec.parameter_values
+    system = NumericSystem(d, p)
+    for _ in range(6):
+        x, v = rng.uniform(-1, 1, 2)
+        _, f, _, _ = system.matrices(0.0, [x], [v])
+        # By hand, away from x = 0 and v = 0: F = −k x H(x) − c v H(v).
+        assert f[0] == pytest.approx(-p["k"] * x * (x > 0) - p["c"] * v * (v > 0), rel=1e-13)

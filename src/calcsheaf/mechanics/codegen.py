@@ -15,7 +15,7 @@ import numpy as np
 import sympy as sp
 
 from ..calcfile.expressions import TIME, symbol
-from .lagrange import Derivation
+from .lagrange import Derivation, diff_ae
 
 
 def numeric(expr, params: dict[str, float]):
@@ -41,7 +41,7 @@ class NumericSystem:
         self._constraint = sp.lambdify([TIME, *derivation.q],
                                        [numeric(e, params) for e in derivation.g], modules="math", cse=True)
         self._constraint_t = sp.lambdify([TIME, *derivation.q],
-                                         [numeric(sp.diff(e, TIME), params) for e in derivation.g],
+                                         [numeric(diff_ae(e, TIME), params) for e in derivation.g],
                                          modules="math", cse=True)
 
     def matrices(self, t: float, q, qd):

@@ -6,6 +6,10 @@ velocities, and f = Q + ∂L/∂q − ∂R/∂q̇ − (∂²L/∂q̇∂q) q̇ �
 without expanding d/dt(∂L/∂q̇) and never simplified (fast for large systems).
 Constraints g(q, t) = 0 give the Gᵀλ term, with G = ∂g/∂q and
 G q̈ = γ, γ = −(∂(G q̇ + g_t)/∂q · q̇ + ∂(G q̇ + g_t)/∂t).
+
+Derivatives of abs(), sign() and step() are taken almost everywhere: sympy's
+DiracDelta terms are dropped (d|v|/dv = sign v, d step(x)/dx = 0), so a
+one-sided spring k/2 x² step(x) gives the force −k x step(x).
 """
 
 from __future__ import annotations
@@ -17,6 +21,17 @@ import sympy as sp
 from ..calcfile.expressions import TIME, acceleration, symbol, velocity
 from ..calcfile.spec import CalcSpec
 from ..model import Step
+
+
+def diff_ae(expr, *variables):
+    """∂expr/∂variables almost everywhere: DiracDelta terms of non-smooth functions dropped."""
+    result = sp.diff(expr, *variables)
+    return result.replace(sp.DiracDelta, lambda *args: sp.S.Zero) if result.has(sp.DiracDelta) else result
+
+
+def jacobian_ae(column: sp.Matrix, variables) -> sp.Matrix:
+    """Jacobian of a column of expressions, almost everywhere (see diff_ae)."""
+    return sp.Matrix(column.rows, len(variables), lambda i, j: diff_ae(column[i], variables[j]))
 
 
 @dataclass(frozen=True)
@@ -41,12 +56,12 @@ class Derivation:
     @property
     def energy_function(self) -> sp.Expr:
         """h = Σ q̇_j ∂L/∂q̇_j − L (the Jacobi integral)."""
-        return sum((v * sp.diff(self.L, v) for v in self.qd), sp.Integer(0)) - self.L
+        return sum((v * diff_ae(self.L, v) for v in self.qd), sp.Integer(0)) - self.L
 
     @property
     def dissipated_power(self) -> sp.Expr:
         """q̇·∂R/∂q̇ (equals n R when R is homogeneous of degree n in q̇)."""
-        return sum((v * sp.diff(self.R, v) for v in self.qd), sp.Integer(0))
+        return sum((v * diff_ae(self.R, v) for v in self.qd), sp.Integer(0))
 
     @property
     def input_power(self) -> sp.Expr:
@@ -56,7 +71,7 @@ class Derivation:
     @property
     def explicit_time_rate(self) -> sp.Expr:
         """∂L/∂t at fixed q, q̇."""
-        return sp.diff(self.L, TIME)
+        return diff_ae(self.L, TIME)
 
 
 def point_force_Q(spec: CalcSpec, q: tuple[sp.Symbol, ...]) -> list[sp.Expr]:
@@ -65,7 +80,7 @@ def point_force_Q(spec: CalcSpec, q: tuple[sp.Symbol, ...]) -> list[sp.Expr]:
     for qj in q:
         total = sp.Integer(0)
         for pf in spec.point_forces:
-            total += sum((F * sp.diff(r, qj) for F, r in zip(pf.force, pf.position)), sp.Integer(0))
+            total += sum((F * diff_ae(r, qj) for F, r in zip(pf.force, pf.position)), sp.Integer(0))
         out.append(total)
     return out
 
@@ -82,20 +97,21 @@ def derive(spec: CalcSpec) -> Derivation:
     from_points = point_force_Q(spec, q)
     Q = sp.Matrix([given.get(n, sp.Integer(0)) + p for n, p in zip(names, from_points)])
 
-    dL_dqd = [sp.diff(L, v) for v in qd]
-    dL_dq = [sp.diff(L, c) for c in q]
-    dR_dqd = [sp.diff(R, v) for v in qd]
-    M = sp.Matrix(len(q), len(q), lambda i, j: sp.diff(dL_dqd[i], qd[j]))
-    rest = [sum((sp.diff(p, c) * v for c, v in zip(q, qd)), sp.Integer(0)) + sp.diff(p, TIME)
+    dL_dqd = [diff_ae(L, v) for v in qd]
+    dL_dq = [diff_ae(L, c) for c in q]
+    dR_dqd = [diff_ae(R, v) for v in qd]
+    M = sp.Matrix(len(q), len(q), lambda i, j: diff_ae(dL_dqd[i], qd[j]))
+    rest = [sum((diff_ae(p, c) * v for c, v in zip(q, qd)), sp.Integer(0)) + diff_ae(p, TIME)
             for p in dL_dqd]
     f = sp.Matrix([Q[i] + dL_dq[i] - dR_dqd[i] - rest[i] for i in range(len(q))])
 
     g = sp.Matrix([c.equation for c in spec.constraints])
     lambdas = tuple(symbol(c.name) for c in spec.constraints)
     if g.rows:
-        G = g.jacobian(q)
-        velocity_constraint = G * sp.Matrix(qd) + sp.diff(g, TIME)
-        gamma = -(velocity_constraint.jacobian(q) * sp.Matrix(qd) + sp.diff(velocity_constraint, TIME))
+        G = jacobian_ae(g, q)
+        velocity_constraint = G * sp.Matrix(qd) + g.applyfunc(lambda e: diff_ae(e, TIME))
+        gamma = -(jacobian_ae(velocity_constraint, q) * sp.Matrix(qd)
+                  + velocity_constraint.applyfunc(lambda e: diff_ae(e, TIME)))
     else:
         G = sp.zeros(0, len(q))
         gamma = sp.zeros(0, 1)

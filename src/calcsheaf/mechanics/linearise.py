@@ -17,7 +17,7 @@ import sympy as sp
 from ..calcfile.expressions import TIME
 from ..model import Linearisation, Mode
 from .codegen import numeric
-from .lagrange import Derivation
+from .lagrange import Derivation, jacobian_ae
 
 RIGID_TOL = 1e-9
 
@@ -36,8 +36,8 @@ def linearise(derivation: Derivation, params: dict[str, float], q_eq: np.ndarray
               lambdas: np.ndarray) -> Linear:
     d = derivation
     forcing = d.f + (d.G.T * sp.Matrix(d.lambdas) if d.lambdas else sp.zeros(len(d.q), 1))
-    jac_q = forcing.jacobian(d.q)
-    jac_qd = forcing.jacobian(d.qd)
+    jac_q = jacobian_ae(forcing, d.q)
+    jac_qd = jacobian_ae(forcing, d.qd)
     args = [TIME, *d.q, *d.qd, *d.lambdas]
     fn = sp.lambdify(args, [numeric(e, params) for e in (*d.M, *jac_q, *jac_qd, *d.G)],
                      modules="math", cse=True)

@@ -19,6 +19,7 @@ from ..calcfile.expressions import query_name, symbol
 from ..errors import AnalysisError
 from ..mechanics import frequency
 from ..mechanics.codegen import numeric, series_function
+from ..mechanics.lagrange import diff_ae
 
 
 @dataclass
@@ -219,5 +220,5 @@ def output_gains(ctx: QueryContext, name: str):
     at = {**{str(s): v for s, v in zip(d.q, ctx.linear_point)}, **{str(s): 0.0 for s in (*d.qd, *d.qdd)}}
     values = []
     for group in (d.q, d.qd, d.qdd):
-        values.append(np.array([float(numeric(sp.diff(expr, s), {**ctx.params, **at})) for s in group]))
+        values.append(np.array([float(numeric(diff_ae(expr, s), {**ctx.params, **at})) for s in group]))
     return tuple(values)
