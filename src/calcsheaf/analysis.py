@@ -86,8 +86,21 @@ def _base_report(spec: CalcSpec) -> m.CalcReport:
 
 
 def _check_mass_matrix(spec, system: NumericSystem, q0, qd0) -> None:
-    M, _, _, _ = system.matrices(0.0, q0, qd0)
-    eig = np.linalg.eigvalsh((M + M.T) / 2) if np.all(np.isfinite(M)) else np.array([np.nan])
+    try:
+        M, _, _, _ = system.matrices(0.0, q0, qd0)
+    except (ValueError, ArithmeticError) as exc:
+        raise DerivationError(
+            f"the equations of motion cannot be evaluated at the initial state "
+            f"({type(exc).__name__}: {exc})", file=str(spec.path), line=spec.line("initial"),
+            key="initial", fix="start where every energy, force and constraint expression is "
+                               "defined (square roots and logarithms of positive numbers, no division by zero)"
+        ) from None
+    if not np.all(np.isfinite(M)):
+        raise DerivationError(
+            "the mass matrix (Hessian of the kinetic energy in the velocities) is not finite at "
+            "the initial state", file=str(spec.path), line=spec.line("energy.kinetic"),
+            key="energy.kinetic", fix="check the kinetic energy for terms that overflow or divide by zero")
+    eig = np.linalg.eigvalsh((M + M.T) / 2)
     if not np.all(np.isfinite(eig)) or eig.min() <= 1e-12 * max(1.0, float(np.max(np.abs(eig)))):
         raise DerivationError(
             f"the mass matrix (Hessian of the kinetic energy in the velocities) is not positive "
@@ -120,21 +133,31 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         checks.append(m.Check("equilibrium", "static equilibrium", False, exc.message))
         return
     names = spec.coordinate_names
-    linear = lin.linearise(derivation, ctx.params, point.q, point.lambdas)
-    stable, verdict = lin.stability(linear)
+    try:
+        linear = lin.linearise(derivation, ctx.params, point.q, point.lambdas)
+        stable, verdict = lin.stability(linear)
+        modes = lin.modes(linear, names) if spec.analysis.modes else ()
+    except (AnalysisError, np.linalg.LinAlgError) as exc:
+        problem = getattr(exc, "problem", f"the linearised system cannot be solved ({exc})")
+        linear, stable, verdict, modes = None, False, f"stability not determined: {problem}", ()
     report.equilibrium = m.Equilibrium(
         values={c.name: float(v) / c.factor for c, v in zip(spec.coordinates, point.q)},
         units={c.name: c.unit for c in spec.coordinates}, stable=stable, verdict=verdict,
         residual=point.residual,
         multipliers={c.name: float(v) / c.factor for c, v in zip(spec.constraints, point.lambdas)})
     ctx.equilibrium = {n: float(v) for n, v in zip(names, point.q)}
-    ctx.linear, ctx.linear_point = linear, point.q
-    report.linearisation = linear.full
     checks.append(m.Check("equilibrium", "static equilibrium", True,
                           f"found, residual {point.residual:.2e}; {verdict}"))
-    if spec.analysis.modes:
-        report.modes = lin.modes(linear, names)
-        ctx.modes = report.modes
+    if linear is None:
+        if spec.analysis.modes:
+            error = AnalysisError(problem, file=spec.path, key="analysis.modes",
+                                  line=spec.line("analysis") or spec.line("energy"),
+                                  fix="set [analysis] modes = false, or smooth the offending term")
+            checks.append(m.Check("modes", "linearisation and modes", False, error.message))
+        return
+    ctx.linear, ctx.linear_point = linear, point.q
+    report.linearisation = linear.full
+    report.modes = ctx.modes = modes
 
 
 def _frequency_response(spec, ctx: QueryContext, report) -> None:

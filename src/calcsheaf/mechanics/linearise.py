@@ -15,6 +15,7 @@ import scipy.linalg as la
 import sympy as sp
 
 from ..calcfile.expressions import TIME
+from ..errors import AnalysisError
 from ..model import Linearisation, Mode
 from .codegen import numeric
 from .lagrange import Derivation, jacobian_ae
@@ -42,7 +43,12 @@ def linearise(derivation: Derivation, params: dict[str, float], q_eq: np.ndarray
     fn = sp.lambdify(args, [numeric(e, params) for e in (*d.M, *jac_q, *jac_qd, *d.G)],
                      modules="math", cse=True)
     n, m = len(d.q), len(d.lambdas)
-    flat = np.array(fn(0.0, *q_eq, *np.zeros(n), *lambdas), dtype=float)
+    try:
+        flat = np.array(fn(0.0, *q_eq, *np.zeros(n), *lambdas), dtype=float)
+    except (ValueError, ArithmeticError) as exc:
+        raise _not_linearisable(f"evaluating the derivatives raised {type(exc).__name__}: {exc}") from None
+    if not np.all(np.isfinite(flat)):
+        raise _not_linearisable("a derivative of the equations is not finite there")
     M = flat[:n * n].reshape(n, n)
     S = -flat[n * n:2 * n * n].reshape(n, n)
     D = -flat[2 * n * n:3 * n * n].reshape(n, n)
@@ -54,6 +60,12 @@ def linearise(derivation: Derivation, params: dict[str, float], q_eq: np.ndarray
                          K=sym(S), N=skew(S))
     B = basis
     return Linear(full=full, basis=B, M=B.T @ M @ B, D=B.T @ D @ B, S=B.T @ S @ B)
+
+
+def _not_linearisable(why: str) -> AnalysisError:
+    return AnalysisError(f"the equations cannot be linearised at the equilibrium: {why} "
+                         "(e.g. a non-smooth or infinitely stiff term)", key="analysis.modes",
+                         fix="set [analysis] modes = false, or smooth the offending term")
 
 
 def stability(linear: Linear) -> tuple[bool, str]:
