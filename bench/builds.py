@@ -1,0 +1,97 @@
+"""(d) A generated project built cold, with nothing changed, and after one edit.
+
+The project holds `count` small calcs (spring chains of 1 to 3 masses and
+pendulum chains of 1 to 3 links, in turn).  Each build is the command line
+`calcsheaf build PROJECT [--jobs N]` in a subprocess, timed from outside
+(interpreter start and imports included: what an engineer waits for).
+
+"Cold" builds a fresh copy of the project with an empty cache folder
+(XDG_CACHE_HOME points at a fresh folder too, so no cache outside the project
+can help); "no-op" builds it again unchanged; "edit" changes one parameter of
+one calc and builds again.  When `build --jobs` is not accepted yet, the three
+builds run without it and the --jobs comparison is reported as pending.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import subprocess
+import tempfile
+import time
+from pathlib import Path
+
+import chain
+import springs
+
+PROJECT_TOML = '[project]\nnumber = "P-BENCH"\nname = "Benchmark project (generated, invented data)"\n'
+EDITED_CALC = 0
+
+
+def calc_text(index: int) -> str:
+    """The index-th calc of the generated project (0-based)."""
+    number = f"B-{index + 1:03d}"
+    size = 1 + (index // 2) % 3
+    if index % 2 == 0:
+        return springs.calc_toml(size, number, scale=1.0 + 0.01 * index)
+    return chain.calc_toml(size, number, form="pairs", analyses=True,
+                           amplitude_rad=round(0.1 + 0.005 * index, 4))
+
+
+def write_project(folder: Path, count: int) -> Path:
+    folder.mkdir(parents=True)
+    (folder / "project.toml").write_text(PROJECT_TOML, encoding="utf-8")
+    calcs = folder / "calcs"
+    calcs.mkdir()
+    for index in range(count):
+        (calcs / f"b-{index + 1:03d}.toml").write_text(calc_text(index), encoding="utf-8")
+    return folder
+
+
+def edit_one(folder: Path) -> None:
+    """Change one parameter value (the first force or angle amplitude) of one calc."""
+    path = folder / "calcs" / f"b-{EDITED_CALC + 1:03d}.toml"
+    text = path.read_text(encoding="utf-8")
+    edited = text.replace('F0 = { value = "40 N"', 'F0 = { value = "41 N"', 1)
+    if edited == text:
+        raise RuntimeError(f"the edit found nothing to change in {path}")
+    path.write_text(edited, encoding="utf-8")
+
+
+def calcsheaf_command() -> str:
+    from sys import executable
+    return str(Path(executable).with_name("calcsheaf"))
+
+
+def jobs_supported() -> bool:
+    """True when `calcsheaf build --help` names a --jobs option."""
+    done = subprocess.run([calcsheaf_command(), "build", "--help"], capture_output=True, text=True)
+    return "--jobs" in done.stdout
+
+
+def _build(project: Path, jobs: int | None, env: dict) -> float:
+    command = [calcsheaf_command(), "build", str(project)]
+    if jobs is not None:
+        command += ["--jobs", str(jobs)]
+    started = time.perf_counter()
+    done = subprocess.run(command, capture_output=True, text=True, env=env)
+    seconds = time.perf_counter() - started
+    if done.returncode not in (0, 1) or not (project / "_site").is_dir():
+        raise RuntimeError(f"{' '.join(command)} failed ({done.returncode}):\n{done.stderr[-2000:]}")
+    if done.returncode == 1:
+        raise RuntimeError(f"a generated calc failed:\n{done.stdout[-2000:]}{done.stderr[-2000:]}")
+    return seconds
+
+
+def measure(count: int, jobs: int | None) -> dict:
+    """Seconds of the cold, no-op and one-edit builds of a fresh `count`-calc project."""
+    with tempfile.TemporaryDirectory() as folder:
+        project = write_project(Path(folder) / "project", count)
+        env = dict(os.environ, XDG_CACHE_HOME=str(Path(folder) / "xdg-cache"),
+                   SOURCE_DATE_EPOCH="1767225600")
+        cold = _build(project, jobs, env)
+        noop = _build(project, jobs, env)
+        edit_one(project)
+        edit = _build(project, jobs, env)
+        shutil.rmtree(project)
+    return {"cold_s": cold, "noop_s": noop, "edit_s": edit}
