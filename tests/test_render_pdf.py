@@ -81,7 +81,8 @@ def test_pdf_a3b_metadata_and_paper(pdf):
 
 
 def test_pdf_is_byte_reproducible(calc_page, pdf):
-    # The pages themselves render reproducibly (test_render_html); here the PDF step.
+    # The pages themselves render reproducibly (test_render_html); here the PDF step,
+    # laid out afresh from the same page.
     assert calc_pdf(calc_page, ATTACHMENTS) == pdf
 
 
@@ -130,3 +131,4 @@ def test_page_reading_outside_files_is_refused(src):
     html = f'<html><body><p>x</p><img src="{src}"></body></html>'
     with pytest.raises(BuildError, match="outside the package"):
         _document(html, "C-1/index.html", {})
+
