@@ -265,3 +265,10 @@ def test_revision_history_and_signoff_in_title_block(tmp_path):
     block = html[html.index('class="title-block"'):html.index('id="revisions"')]
     assert "Ann Example" in block and "2024-04-01" in block and "not signed" in block
     assert "checker signed an older content" in block
+
+
+def test_plot_captions_use_symbols_and_units(rendered):
+    page, _ = rendered
+    assert "<figcaption>Time history: <i>z</i> [m]</figcaption>" in page.html
+    assert "<figcaption>Frequency response: <i>θ</i> [rad]</figcaption>" in page.html
+    assert len([p for p in page.assets if p.endswith(".svg")]) == 6

@@ -13,11 +13,12 @@ from markupsafe import Markup
 
 from calcsheaf.errors import BuildError
 from calcsheaf.model import CalcReport, PackageModel, ProjectInfo, Step
-from calcsheaf.render import plots, site, theme
+from calcsheaf.render import formatting, plots, site, theme
 from calcsheaf.render.cautions import DRAFT_MARK, GENERAL, calc_cautions
 from calcsheaf.render.equation import Equation, inline, layout
 from calcsheaf.render.mathml import equation_mathml
 from calcsheaf.render.mathsvg import EquationImages, equation_key
+from calcsheaf.render.symbols import name_html
 
 SECTIONS = (
     ("revisions", "Revision history"),
@@ -57,7 +58,8 @@ class ShownEquation:
 
 @dataclass(frozen=True)
 class ShownPlot:
-    title: str
+    title: str                    # plain text, for alt text
+    caption: Markup               # title with engineers' symbols and unit
     image: str                    # SVG path relative to the calc folder
 
 
@@ -102,7 +104,15 @@ class _Collector:
     def plot(self, plot: plots.Plot) -> ShownPlot:
         image = f"plots/{plot.name}.svg"
         self.site_files[f"{self.folder}/{image}"] = plot.svg
-        return ShownPlot(plot.title, image)
+        return ShownPlot(plot.title, _caption(plot), image)
+
+
+def _caption(plot: plots.Plot) -> Markup:
+    if not plot.symbols:
+        return Markup.escape(plot.title)
+    kind = Markup.escape(plot.title.split(":")[0])
+    symbols = Markup(", ").join(Markup(name_html(name)) for name in plot.symbols)
+    return Markup("{}: {} [{}]").format(kind, symbols, formatting.unit(plot.unit))
 
 
 def _plots(report: CalcReport, collect: _Collector) -> dict:

@@ -39,8 +39,10 @@ HEIGHT_IN = 2.9
 @dataclass(frozen=True)
 class Plot:
     name: str          # file stem, unique within a calc, e.g. "time-1"
-    title: str
+    title: str         # plain text (alt text), e.g. "Time history: z, theta"
     svg: bytes
+    symbols: tuple[str, ...] = ()   # calc names plotted, for the caption
+    unit: str = ""
 
 
 def _label(name: str, label: str = "") -> str:
@@ -87,9 +89,9 @@ def time_history_plots(history: TimeHistory) -> list[Plot]:
             symbols = ", ".join(f"${name_latex(item.name)}$" for item in members)
             axes.set_ylabel(f"{symbols} [{_axis_unit(unit)}]")
             axes.legend(loc="best")
-        names = ", ".join(item.name for item in members)
-        plots.append(Plot(f"time-{index}", f"Time history: {names} [{_axis_unit(unit)}]",
-                          _svg(figure)))
+        names = tuple(item.name for item in members)
+        plots.append(Plot(f"time-{index}", f"Time history: {', '.join(names)}", _svg(figure),
+                          names, _axis_unit(unit)))
     return plots
 
 
@@ -107,7 +109,7 @@ def energy_plot(audit: EnergyAudit) -> Plot:
         bottom.set_ylabel("residual [J]")
         bottom.set_xlabel("time t [s]")
         bottom.legend(loc="best")
-    return Plot("energy", "Energy audit", _svg(figure))
+    return Plot("energy", "Energy audit", _svg(figure), unit="J")
 
 
 def frequency_response_plots(response: FrequencyResponse) -> list[Plot]:
@@ -130,5 +132,5 @@ def frequency_response_plots(response: FrequencyResponse) -> list[Plot]:
             phase.set_xlabel("frequency f [Hz]")
             phase.legend(loc="best")
         plots.append(Plot(f"frf-{index}", f"Frequency response: {', '.join(names)}",
-                          _svg(figure)))
+                          _svg(figure), tuple(names), _axis_unit(unit)))
     return plots
