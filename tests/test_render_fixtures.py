@@ -13,8 +13,8 @@ import sympy as sp
 
 from calcsheaf.model import (
     Assumption, CalcReport, Check, CoordinateRow, CriterionRow, CrosscheckRow, EnergyAudit,
-    Equilibrium, FrequencyResponse, InputRow, Mode, OutputSummary, PackageModel, ProjectInfo,
-    Reference, ResultValue, Series, SolverRun, Step, TimeHistory,
+    Equilibrium, FrequencyResponse, InputRow, Linearisation, Mode, OutputSummary, PackageModel,
+    ProjectInfo, Reference, ResultValue, Series, SolverRun, Step, TimeHistory,
 )
 from calcsheaf.render.symbols import name_latex
 
@@ -110,6 +110,9 @@ def report(number: str = "C-201", *, status: str = "draft", extra_steps: int = 0
         derivation=_derivation(extra_steps), equations=_equations(),
         equilibrium=Equilibrium({"z": 0.0, "theta": 0.0}, {"z": "m", "theta": "rad"}, True,
                                 "stable: stiffness positive definite", 1.2e-14),
+        linearisation=Linearisation(("z", "theta"), np.array([[52.0, 18.0], [18.0, 27.0]]),
+                                    np.array([[150.0, 0.0], [0.0, 0.0]]), np.zeros((2, 2)),
+                                    np.array([[20000.0, 0.0], [0.0, 176.5]]), np.zeros((2, 2))),
         modes=(Mode(1, "oscillatory", 0.41, 2.58, 0.004, 0.41, {"z": -0.05, "theta": 1.0}),
                Mode(2, "oscillatory", 3.55, 22.3, 0.031, 3.548, {"z": 1.0, "theta": -0.3})),
         frequency_response=_frequency(), time_history=_time_history(), energy=_energy(),

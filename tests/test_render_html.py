@@ -272,3 +272,11 @@ def test_plot_captions_use_symbols_and_units(rendered):
     assert "<figcaption>Time history: <i>z</i> [m]</figcaption>" in page.html
     assert "<figcaption>Frequency response: <i>θ</i> [rad]</figcaption>" in page.html
     assert len([p for p in page.assets if p.endswith(".svg")]) == 6
+
+
+def test_linearised_matrices_shown_without_zero_skew_parts(rendered):
+    page, _ = rendered
+    modes = page.html[page.html.index('id="modes"'):page.html.index('id="frequency-response"')]
+    captions = [c.split("<i>")[1].split("</i>")[0] for c in modes.split("<caption>")[1:]]
+    assert captions == ["M", "C", "K"]                    # G and N are zero here
+    assert ">20000<" in modes and ">176.5<" in modes

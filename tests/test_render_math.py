@@ -115,3 +115,19 @@ def test_svg_cache_in_memory_and_on_disk(tmp_path, monkeypatch):
     monkeypatch.setattr(mathsvg, "draw", refuse)
     assert images.svg(eq) == data                          # memory
     assert EquationImages(tmp_path / "eq").svg(eq) == data  # disk, fresh instance
+
+
+def test_sums_come_before_rates_in_products():
+    m, big_m, ddz = sp.Symbol("m"), sp.Symbol("M"), sp.Symbol("ddot(z)")
+    assert latex((big_m + m) * ddz) == r"\left(M + m\right) \ddot{z}"
+    assert latex(m * ddz * sp.cos(sp.Symbol("theta"))) == r"m \ddot{z} \cos(\theta)"
+
+
+@pytest.mark.parametrize("value, text", [
+    (20000.0, "20000"), (0.0069523, "0.006952"), (-1.2e6, "−1.2×10<sup>6</sup>"),
+    (3e-9, "3×10<sup>−9</sup>"), (12.0, "12"), (9.80665, "9.807"), (0.5, "0.5"),
+    (999999.0, "999999"), (0.0, "0"), (None, "—"),
+])
+def test_number_formatting(value, text):
+    from calcsheaf.render.formatting import number
+    assert number(value) == text

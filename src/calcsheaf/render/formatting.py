@@ -11,7 +11,7 @@ SIGNIFICANT = 4
 
 
 def number(value: float | None, significant: int = SIGNIFICANT) -> Markup:
-    """`value` to `significant` figures; powers of ten as ×10<sup>n</sup>; "—" for None."""
+    """`value` to `significant` figures: plain from 0.001 to 10⁶, else m×10<sup>n</sup>; "—" for None."""
     if value is None:
         return Markup("—")
     if math.isnan(value):
@@ -20,13 +20,17 @@ def number(value: float | None, significant: int = SIGNIFICANT) -> Markup:
         return Markup("∞" if value > 0 else "−∞")
     if value == 0:
         return Markup("0")
-    text = f"{value:.{significant}g}"
-    if "e" not in text:
+    if 1e-3 <= abs(value) < 1e6:
+        decimals = max(significant - 1 - math.floor(math.log10(abs(value))), 0)
+        text = f"{round(value, decimals):.{decimals}f}"
+        if "." in text:
+            text = text.rstrip("0").rstrip(".")
         return Markup(text.replace("-", "−"))
-    mantissa, exponent = text.split("e")
-    mantissa = mantissa.replace("-", "−")
+    mantissa, exponent = f"{value:.{significant - 1}e}".split("e")
+    if "." in mantissa:
+        mantissa = mantissa.rstrip("0").rstrip(".")
     power = str(int(exponent)).replace("-", "−")
-    return Markup(f"{mantissa}×10<sup>{power}</sup>")
+    return Markup(f"{mantissa.replace('-', '−')}×10<sup>{power}</sup>")
 
 
 def ratio(value: float | None) -> Markup:

@@ -124,13 +124,13 @@ class CalcLatexPrinter(LatexPrinter):
         return f"{name}({args})"
 
     def _factor_rank(self, factor) -> int:
-        """Order of factors in a product: numbers, symbols, rates, then functions."""
+        """Order of factors in a product: numbers, symbols, sums, rates, then functions."""
         base = factor.base if factor.is_Pow else factor
         if base.is_Number:
             return 0
         if base.is_Symbol:
-            return 2 if _DOTTED.fullmatch(base.name) else 1
-        return 3
+            return 3 if _DOTTED.fullmatch(base.name) else 1
+        return 2 if base.is_Add else 4
 
     def _product(self, expr) -> str:
         """A product without denominator, e.g. `m \\ddot{x}` rather than `\\ddot{x} m`."""
