@@ -16,8 +16,8 @@ from pathlib import Path
 import pytest
 
 from calcsheaf.render import site
-from calcsheaf.render.html import render_calc, site_static
-from test_render_fixtures import project, report
+from calcsheaf.render.html import site_static
+from test_render_fixtures import THEME_ONLY_ROOT, project, standard_page
 
 CHROMIUM = shutil.which("chromium")
 pytestmark = pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed")
@@ -53,8 +53,8 @@ def _chromium(tmp_path: Path, *args: str) -> subprocess.CompletedProcess:
 @pytest.fixture(scope="module")
 def site_dir(tmp_path_factory):
     out = tmp_path_factory.mktemp("site")
-    page = render_calc(report(), project(out), build_date="2024-05-01")
-    for path, data in {**page.assets, **site_static(project(out))}.items():
+    page = standard_page()
+    for path, data in {**page.assets, **site_static(project(THEME_ONLY_ROOT))}.items():
         (out / path).parent.mkdir(parents=True, exist_ok=True)
         (out / path).write_bytes(data)
     probed = page.html.replace("</body>", PROBE + "</body>")

@@ -6,6 +6,7 @@ formatting, never the physics, so no value here is a published result.
 
 from __future__ import annotations
 
+import functools
 from pathlib import Path
 
 import numpy as np
@@ -55,7 +56,8 @@ def _derivation(extra: int = 0) -> tuple[Step, ...]:
 
 
 def _equations() -> tuple[Step, ...]:
-    eq_z = (M + m) * ddz + m * l * (ddtheta * sp.cos(theta) - dtheta**2 * sp.sin(theta)) + c * dz + k * z
+    eq_z = ((M + m) * ddz + m * l * (ddtheta * sp.cos(theta) - dtheta**2 * sp.sin(theta))
+            + c * dz + k * z)
     eq_t = m * l**2 * ddtheta + m * l * ddz * sp.cos(theta) + m * g * l * sp.sin(theta)
     return (Step("Equation of motion", "Q_{z}", eq_z, "z"),
             Step("Equation of motion", r"Q_{\theta}", sp.Eq(eq_t, 0), "theta"))
@@ -117,11 +119,13 @@ def report(number: str = "C-201", *, status: str = "draft", extra_steps: int = 0
                Mode(2, "oscillatory", 3.55, 22.3, 0.031, 3.548, {"z": 1.0, "theta": -0.3})),
         frequency_response=_frequency(), time_history=_time_history(), energy=_energy(),
         outputs=(OutputSummary("F_k", "kN", "spring force", 1.6, 1.6, 0.8),),
-        results=(ResultValue("f_1", "natural_frequency(1)", 0.41, "Hz", "first natural frequency"),),
+        results=(ResultValue("f_1", "natural_frequency(1)", 0.41, "Hz",
+                             "first natural frequency"),),
         criteria=(CriterionRow("spring force within rating", "peak(F_k)", "F_rated", 1.6, 2.5,
                                "kN", 0.64, True, "R1"),),
         crosschecks=(CrosscheckRow("sdof_viscous", "Single mass on spring and damper",
-                                   "natural_frequency_hz", r"f_n = \frac{1}{2\pi}\sqrt{\frac{k}{m}}",
+                                   "natural_frequency_hz",
+                                   r"f_n = \frac{1}{2\pi}\sqrt{\frac{k}{m}}",
                                    3.55, 3.5500001, 2.8e-8, 1e-6, "eigen-solver round-off", True,
                                    "Invented textbook, eq. 2.1", (("zeta < 1", True),)),),
         checks=(Check("equilibrium", "residual below tolerance", True, "1.2e-14"),
@@ -143,3 +147,15 @@ def failed_report(number: str = "C-666") -> CalcReport:
 
 def package(root: Path, calcs: list[CalcReport], paper: str = "A4") -> PackageModel:
     return PackageModel(project(root, paper), calcs, {"calcsheaf": "0.1.0"}, "2024-05-01")
+
+
+# A project root without a templates/ folder: pages use the default theme only.
+THEME_ONLY_ROOT = Path("/nonexistent/calcsheaf-render-tests")
+BUILD_DATE = "2024-05-01"
+
+
+@functools.cache
+def standard_page():
+    """The rendered page of `report()`, shared by the test modules (render once)."""
+    from calcsheaf.render.html import render_calc
+    return render_calc(report(), project(THEME_ONLY_ROOT), build_date=BUILD_DATE)

@@ -13,7 +13,9 @@ from calcsheaf.render import plots, site
 from calcsheaf.render.cautions import DRAFT_MARK, GENERAL, HAZARDS, calc_cautions
 from calcsheaf.render.html import SECTIONS, render_calc, render_index, site_static
 from calcsheaf.render.markdown_text import markdown_html
-from test_render_fixtures import failed_report, package, project, report
+from test_render_fixtures import (
+    BUILD_DATE, THEME_ONLY_ROOT, failed_report, package, project, report, standard_page,
+)
 
 
 class _Page(HTMLParser):
@@ -45,9 +47,8 @@ class _Page(HTMLParser):
 
 
 @pytest.fixture(scope="module")
-def rendered(tmp_path_factory):
-    root = tmp_path_factory.mktemp("project")
-    return render_calc(report(), project(root), build_date="2024-05-01"), root
+def rendered():
+    return standard_page(), THEME_ONLY_ROOT
 
 
 def _site_files(page, root) -> set[str]:
@@ -166,7 +167,7 @@ def test_cautions_cover_general_and_hazards():
 
 def test_rendering_is_reproducible(rendered, tmp_path):
     page, root = rendered
-    again = render_calc(report(), project(root), build_date="2024-05-01")
+    again = render_calc(report(), project(root), build_date=BUILD_DATE)
     assert again.html == page.html and again.print_html == page.print_html
     assert again.assets == page.assets and again.print_assets == page.print_assets
 
@@ -252,7 +253,8 @@ def test_theme_is_found_from_the_package():
 def test_revision_history_and_signoff_in_title_block(tmp_path):
     calc = failed_report()
     calc.revision = "C"
-    history = [{"rev": "A", "date": "2024-01-10", "status": "superseded", "description": "First issue",
+    history = [{"rev": "A", "date": "2024-01-10", "status": "superseded",
+                "description": "First issue",
                 "prepared_by": "Ann Example", "checked_by": "Ben Example", "content_hash": "x"},
                {"rev": "B", "date": "2024-03-02", "status": "issued", "description": "New buffer",
                 "prepared_by": "Ann Example", "checked_by": "Ben Example"}]
@@ -260,8 +262,9 @@ def test_revision_history_and_signoff_in_title_block(tmp_path):
                "checked_date": "", "stale_reason": "checker signed an older content", "records": {}}
     html = render_calc(calc, project(tmp_path), revisions=history, signoff=signoff).html
     table = html[html.index('id="revisions"'):html.index('id="failure"')]
-    assert [table.index(r) for r in ("First issue", "New buffer", "Working revision, not issued")] \
-        == sorted(table.index(r) for r in ("First issue", "New buffer", "Working revision, not issued"))
+    rows = ("First issue", "New buffer", "Working revision, not issued")
+    positions = [table.index(row) for row in rows]
+    assert positions == sorted(positions)
     block = html[html.index('class="title-block"'):html.index('id="revisions"')]
     assert "Ann Example" in block and "2024-04-01" in block and "not signed" in block
     assert "checker signed an older content" in block

@@ -14,7 +14,7 @@ from calcsheaf.errors import BuildError
 from calcsheaf.render.cautions import DRAFT_MARK
 from calcsheaf.render.html import render_calc
 from calcsheaf.render.pdf import ASSET_ROOT, AssetFetcher, _document, calc_pdf, project_pdf
-from test_render_fixtures import SOURCE_TOML, failed_report, package, project, report
+from test_render_fixtures import SOURCE_TOML, failed_report, package, project, standard_page
 
 pytestmark = pytest.mark.skipif(shutil.which("pdftotext") is None,
                                 reason="pdftotext (poppler-utils) is not installed")
@@ -30,13 +30,8 @@ def _sheets(pdf: bytes) -> list[str]:
 
 
 @pytest.fixture(scope="module")
-def root(tmp_path_factory):
-    return tmp_path_factory.mktemp("project")
-
-
-@pytest.fixture(scope="module")
-def calc_page(root):
-    return render_calc(report(), project(root), build_date="2024-05-01")
+def calc_page():
+    return standard_page()
 
 
 @pytest.fixture(scope="module")

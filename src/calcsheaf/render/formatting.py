@@ -11,7 +11,9 @@ SIGNIFICANT = 4
 
 
 def number(value: float | None, significant: int = SIGNIFICANT) -> Markup:
-    """`value` to `significant` figures: plain from 0.001 to 10⁶, else m×10<sup>n</sup>; "—" for None."""
+    """`value` to `significant` figures: plain from 0.001 to 10⁶, else m×10<sup>n</sup>.
+
+    None gives "—"."""
     if value is None:
         return Markup("—")
     if math.isnan(value):

@@ -47,7 +47,8 @@ def theme_dirs(project_root: Path | None) -> list[Path]:
 
 def environment(project_root: Path | None) -> jinja2.Environment:
     """Jinja2 environment: autoescape on, undefined names are errors, theme filters."""
-    loader = jinja2.ChoiceLoader([jinja2.FileSystemLoader(str(d)) for d in theme_dirs(project_root)])
+    loaders = [jinja2.FileSystemLoader(str(folder)) for folder in theme_dirs(project_root)]
+    loader = jinja2.ChoiceLoader(loaders)
     env = jinja2.Environment(loader=loader, autoescape=True, undefined=jinja2.StrictUndefined,
                              keep_trailing_newline=True, trim_blocks=True, lstrip_blocks=True)
     env.filters.update({
