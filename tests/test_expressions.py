@@ -266,7 +266,7 @@ TOKENS = ["x", "k", "m", "E", "I", "t", "pi", "F_out", "0", "1", "2", "9", "64",
           "exp", "log", "sqrt", "abs", "sign", "step", "min", "max", "dot", "ddot", "peak", "at",
           "natural_frequency", "period", "frf", "frf_peak", "equilibrium", "1j", "...", "*x", "**9"]
 
-FUZZ = settings(max_examples=150, deadline=timedelta(seconds=3), database=None,
+FUZZ = settings(max_examples=150, deadline=timedelta(seconds=3), database=None, derandomize=True,
                 suppress_health_check=[HealthCheck.too_slow])
 
 
