@@ -762,3 +762,66 @@ def test_equilibrium_where_the_stiffness_is_infinite_fails_the_modes_check_only(
     assert "analysis.modes" in failed[0].detail
     assert report.equilibrium.verdict.startswith("stability not determined")
     assert report.modes == ()
+
+
+# --------------------------------------------------------------------------------------
+# Gyroscopic coupling: a mass on isotropic springs seen from a rotating frame
+# --------------------------------------------------------------------------------------
+def rotating_frame_calc(W: float, c: float = 0.0) -> str:
+    return f"""
+    [calc]
+    number = "A-11"
+    title = "mass on springs in a rotating frame"
+
+    [parameters]
+    m = "2 kg"
+    k = "800 N/m"
+    W = "{W} rad/s"
+    c = "{c} N*s/m"
+
+    [coordinates]
+    x = {{ unit = "m" }}
+    y = {{ unit = "m" }}
+
+    [energy]
+    kinetic = "m/2*((dot(x) - W*y)**2 + (dot(y) + W*x)**2)"
+    potential = "k/2*(x**2 + y**2)"
+    dissipation = "c/2*(dot(x)**2 + dot(y)**2)"
+
+    [initial]
+    x = "0.01 m"
+    y = "0 m"
+    "dot(x)" = "0 m/s"
+    "dot(y)" = "0 m/s"
+    """
+
+
+@pytest.mark.parametrize("W", [5.0, 30.0])
+def test_rotating_frame_splits_the_natural_frequency(tmp_path, W):
+    """Regression: frequencies came from K φ = ω² M φ, ignoring the gyroscopic matrix
+    (19.4 rad/s for both modes at W = 5 instead of 15 and 25), and W > omega_n was called unstable.
+
+    By hand, z = x + i y gives m z'' + 2 i m W z' + (k − m W²) z = 0, so s = i(−W ± omega_n):
+    rotating-frame frequencies |omega_n − W| and omega_n + W, undamped, for any W
+    (L. Meirovitch, Principles and Techniques of Vibrations, 1997, gyroscopic systems, from memory).
+    """
+    report = report_of(tmp_path, rotating_frame_calc(W))
+    assert report.passed, [c for c in report.checks if not c.passed]
+    wn = math.sqrt(800 / 2)
+    frequencies = sorted(mode.natural_frequency_rad_s for mode in report.modes)
+    assert frequencies == pytest.approx(sorted([abs(wn - W), wn + W]), rel=1e-10)
+    for mode in report.modes:
+        assert mode.kind == "oscillatory"
+        assert mode.damping_ratio == pytest.approx(0.0, abs=1e-10)
+        assert mode.damped_frequency_hz == pytest.approx(mode.natural_frequency_hz, rel=1e-10)
+    assert report.equilibrium.stable
+    if W > wn:
+        assert "gyroscopic" in report.equilibrium.verdict
+
+
+def test_rotating_frame_with_damping_above_the_critical_speed_is_unstable(tmp_path):
+    # Rotating (internal) damping destabilises the gyroscopically stabilised state above
+    # W = omega_n (Kelvin-Tait-Chetaev theorem; Meirovitch, 1997, from memory).
+    report = report_of(tmp_path, rotating_frame_calc(30.0, c=1.0))
+    assert not report.equilibrium.stable
+    assert "positive real part" in report.equilibrium.verdict

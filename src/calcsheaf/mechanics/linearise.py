@@ -69,16 +69,21 @@ def _not_linearisable(why: str) -> AnalysisError:
 
 
 def stability(linear: Linear) -> tuple[bool, str]:
-    """Stable when the stiffness is positive definite and no damped root grows."""
+    """Stable when no root of the linearised system grows; for symmetric systems this needs a
+    positive (semi-)definite stiffness, with gyroscopic coupling it may hold without one."""
     K = (linear.S + linear.S.T) / 2
     eig = np.linalg.eigvalsh(K) if K.size else np.zeros(0)
     scale = max(1.0, float(np.max(np.abs(eig)))) if eig.size else 1.0
     roots = _state_roots(linear)
     growing = [s for s in roots if s.real > 1e-9 * max(1.0, abs(s))]
-    if eig.size and eig.min() < -RIGID_TOL * scale:
+    negative = bool(eig.size and eig.min() < -RIGID_TOL * scale)
+    if negative and not _has_skew_parts(linear):
         return False, "unstable: the stiffness at the equilibrium has a negative eigenvalue"
     if growing:
         return False, "unstable: a root of the linearised system has a positive real part"
+    if negative:
+        return True, ("stable by gyroscopic coupling: no root of the linearised system grows although "
+                      "the stiffness has a negative eigenvalue (damping may destabilise it)")
     if eig.size and eig.min() <= RIGID_TOL * scale:
         return True, "neutrally stable: zero stiffness in at least one direction (rigid-body mode)"
     return True, "stable: stiffness positive definite at the equilibrium"
@@ -94,10 +99,18 @@ def _state_roots(linear: Linear) -> np.ndarray:
 
 
 def modes(linear: Linear, names: tuple[str, ...]) -> tuple[Mode, ...]:
-    """Modes sorted by natural frequency, shapes normalised to a largest component of 1."""
+    """Modes sorted by natural frequency, shapes normalised to a largest component of 1.
+
+    Symmetric systems: frequencies and shapes from K φ = ω² M φ, damping from the
+    state-space roots.  With gyroscopic or circulatory parts the undamped problem
+    does not give the frequencies (a rotating frame splits them), so every mode
+    comes from the state-space roots.
+    """
     r = linear.M.shape[0]
     if r == 0:
         return ()
+    if _has_skew_parts(linear):
+        return _state_space_modes(linear, names)
     K = (linear.S + linear.S.T) / 2
     lam, vecs = la.eigh(K, linear.M)
     scale = max(1.0, float(np.max(np.abs(lam))))
@@ -116,11 +129,59 @@ def modes(linear: Linear, names: tuple[str, ...]) -> tuple[Mode, ...]:
         zeta, wd = _match(damped, omega) if kind == "oscillatory" else (float("nan"), 0.0)
         if kind == "oscillatory" and zeta >= 1.0:
             kind = "overdamped"
-        out.append(Mode(index=i + 1, kind=kind, natural_frequency_hz=omega / (2 * np.pi),
-                        natural_frequency_rad_s=omega, damping_ratio=zeta,
-                        damped_frequency_hz=wd / (2 * np.pi),
-                        shape={n: float(v) for n, v in zip(names, shape)}))
+        out.append(_mode(i + 1, kind, omega, zeta, wd, shape, names))
     return tuple(out)
+
+
+def _mode(index, kind, omega, zeta, wd, shape, names) -> Mode:
+    return Mode(index=index, kind=kind, natural_frequency_hz=omega / (2 * np.pi),
+                natural_frequency_rad_s=omega, damping_ratio=float(zeta) + 0.0,
+                damped_frequency_hz=wd / (2 * np.pi),
+                shape={n: float(v) + 0.0 for n, v in zip(names, shape)})
+
+
+def _has_skew_parts(linear: Linear) -> bool:
+    """True when the velocity or stiffness matrix has a gyroscopic/circulatory (skew) part."""
+    def skew(A):
+        return float(np.max(np.abs(A - A.T))) / 2 if A.size else 0.0
+    scale = max(1e-300, float(np.max(np.abs(linear.S))) + float(np.max(np.abs(linear.D))))
+    return max(skew(linear.D), skew(linear.S)) > 1e-12 * scale
+
+
+def _state_space_modes(linear: Linear, names: tuple[str, ...]) -> tuple[Mode, ...]:
+    """Modes from the eigenvalues s of the first-order system: ω_n = |s|, ζ = −Re s/|s|.
+
+    An oscillatory pair (Im s > 0) is one mode, with the real part of its eigenvector
+    (largest component rotated to 1) as the shape; the remaining real roots are
+    paired in order: both near zero is a rigid-body mode, both negative an
+    overdamped one, otherwise the mode is unstable.
+    """
+    r = linear.M.shape[0]
+    Minv = np.linalg.inv(linear.M)
+    A = np.block([[np.zeros((r, r)), np.eye(r)], [-Minv @ linear.S, -Minv @ linear.D]])
+    roots, vectors = np.linalg.eig(A)
+    scale = max(1.0, float(np.max(np.abs(roots))))
+    found = []
+    is_real = np.abs(roots.imag) <= 1e-9 * np.maximum(1.0, np.abs(roots))
+    for s, v, flag in zip(roots, vectors.T, is_real):
+        if not flag and s.imag > 0:
+            wn = float(abs(s))
+            kind = "oscillatory" if s.real <= 1e-9 * wn else "unstable"
+            found.append((wn, kind, float(-s.real / wn), float(s.imag), linear.basis @ v[:r]))
+    real = sorted(((float(s.real), v) for s, v, flag in zip(roots, vectors.T, is_real) if flag),
+                  key=lambda item: item[0])
+    for (a, va), (b, _) in zip(real[0::2], real[1::2]):
+        shape = linear.basis @ va[:r].real
+        if max(abs(a), abs(b)) <= np.sqrt(RIGID_TOL) * scale:
+            found.append((0.0, "rigid-body", float("nan"), 0.0, shape))
+        elif a < 0 and b < 0:
+            wn = float(np.sqrt(a * b))
+            found.append((wn, "overdamped", float(-(a + b) / (2 * wn)), 0.0, shape))
+        else:
+            found.append((float(np.sqrt(abs(a * b))), "unstable", float("nan"), 0.0, shape))
+    found.sort(key=lambda item: item[0])
+    return tuple(_mode(i + 1, kind, wn, zeta, wd, _normalise(shape).real, names)
+                 for i, (wn, kind, zeta, wd, shape) in enumerate(found[:r]))
 
 
 def _damped_pairs(roots: np.ndarray) -> list[tuple[float, float, float]]:
