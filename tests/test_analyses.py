@@ -200,7 +200,7 @@ def test_simple_pendulum_large_amplitude_period(tmp_path_factory):
 ATWOOD = dict(m1=3.0, m2=5.0)
 
 
-def atwood_calc(y1_initial: str = "1.2 m") -> str:
+def atwood_calc(y1_initial: str = "1.2 m", v1_initial: str = "0 m/s") -> str:
     return f"""
 [calc]
 number = "A-3"
@@ -229,7 +229,7 @@ label = "rope tension"
 [initial]
 y1 = "{y1_initial}"
 y2 = "0.8 m"
-"dot(y1)" = "0 m/s"
+"dot(y1)" = "{v1_initial}"
 "dot(y2)" = "0 m/s"
 
 [analysis]
@@ -270,8 +270,9 @@ def test_atwood_machine_acceleration_and_rope_tension(tmp_path_factory):
     assert report.energy.passed
 
 
-def test_initial_values_violating_a_constraint_are_refused(tmp_path):
-    report = report_of(tmp_path, atwood_calc(y1_initial="1.25 m"))
+@pytest.mark.parametrize("y1, v1", [("1.25 m", "0 m/s"), ("1.2 m", "0.1 m/s")])
+def test_initial_values_violating_a_constraint_are_refused(tmp_path, y1, v1):
+    report = report_of(tmp_path, atwood_calc(y1_initial=y1, v1_initial=v1))
     assert isinstance(report.error, AnalysisError)
     assert "violate constraint 'T_rope'" in report.error.problem
     assert report.error.key == "initial"
