@@ -29,8 +29,9 @@ WATCHED = ("project.toml", "calcs", "signoffs", "issued", "templates")
 
 
 def build(project_root: Path, out_dir: Path | None = None, jobs: int | None = None,
-          out=sys.stdout, err=sys.stderr) -> int:
+          out=None, err=None) -> int:
     """Build the site; 0 when every calc passes, 1 when any fails (the site is still written)."""
+    out, err = out or sys.stdout, err or sys.stderr
     root = Path(project_root)
     if not (root / "project.toml").is_file():
         raise InputError("is not a calcsheaf project (no project.toml)", file=root,

@@ -8,8 +8,10 @@ from pathlib import Path
 from ..pipeline import analyse_project
 
 
-def check(project_root: Path, out=sys.stdout, err=sys.stderr) -> int:
+def check(project_root: Path, out=None, err=None) -> int:
     """Print one line per calc; 0 when every calc passes, 1 otherwise."""
+    out = out or sys.stdout
+    err = err or sys.stderr
     project, outcomes = analyse_project(Path(project_root))
     failed = 0
     for outcome in outcomes:

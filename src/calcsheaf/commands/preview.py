@@ -17,8 +17,9 @@ from pathlib import Path
 from .build import build, input_key
 
 
-def preview(project_root: Path, port: int = 8000, out=sys.stdout, polls: int | None = None) -> int:
+def preview(project_root: Path, port: int = 8000, out=None, polls: int | None = None) -> int:
     """Serve PROJECT/_site at http://127.0.0.1:PORT/ until interrupted (or `polls` polls)."""
+    out = out or sys.stdout
     root = Path(project_root)
     target = root / "_site"
     build(root, out=out)

@@ -59,7 +59,7 @@ def calc_files(report: CalcReport, project: ProjectInfo, date: str, images: Equa
 def site_files(package: PackageModel, selftest: dict[str, bytes] | None = None,
                cache=None) -> dict[str, bytes]:
     """Every file of the site except SHA256SUMS; unchanged calcs come from `cache`."""
-    images = EquationImages()
+    images = EquationImages(package.project.root / ".calcsheaf-cache" / "equations")
     files: dict[str, bytes] = {}
     pages, shown, attachments = [], [], {}
     project_text = (package.project.root / "project.toml").read_bytes()

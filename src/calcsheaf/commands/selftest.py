@@ -67,7 +67,9 @@ def cached_selftest_files() -> dict[str, bytes]:
     return files
 
 
-def selftest(out_dir: Path | None = None, out=sys.stdout) -> int:
+def selftest(out_dir: Path | None = None, out=None) -> int:
+    """Run the suite, print one line per case, write the report; 1 when any case fails."""
+    out = out or sys.stdout
     from ..pipeline import analyse_paths
     from .build import write_site
 
