@@ -5,7 +5,7 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
-from .calcfile.loader import did_you_mean
+from .calcfile.loader import closest, did_you_mean
 from .calcfile.toml_source import read_toml
 from .errors import InputError, ProblemList
 from .model import Person, ProjectInfo
@@ -39,8 +39,10 @@ def load_project(root: Path) -> ProjectInfo:
         problem("project", "missing [project] table", 'add [project] with number and name')
         block = {}
     for key in sorted(set(block) - PROJECT_KEYS):
-        problem(f"project.{key}", f"unknown key '{key}'{did_you_mean(key, PROJECT_KEYS)}",
-                f"allowed: {', '.join(sorted(PROJECT_KEYS))}")
+        close = closest(key, PROJECT_KEYS - set(block))
+        problem(f"project.{key}", f"unknown key '{key}'" + (f" (did you mean '{close}'?)" if close else ""),
+                f"rename it to {close}" if close else
+                f"remove it; the keys of [project] are {', '.join(sorted(PROJECT_KEYS))}")
     for key in ("number", "name"):
         if not isinstance(block.get(key), str) or not block.get(key).strip():
             problem(f"project.{key}" if key in block else "project", f"project {key} is missing or not text",
@@ -71,8 +73,10 @@ def _people(rows, problem) -> tuple[Person, ...]:
             problem(key, "must be a table", "write [[person]] with id and name")
             continue
         for k in sorted(set(row) - PERSON_KEYS):
-            problem(f"{key}.{k}", f"unknown key '{k}'{did_you_mean(k, PERSON_KEYS)}",
-                    f"allowed: {', '.join(sorted(PERSON_KEYS))}")
+            close = closest(k, PERSON_KEYS - set(row))
+            problem(f"{key}.{k}", f"unknown key '{k}'" + (f" (did you mean '{close}'?)" if close else ""),
+                    f"rename it to {close}" if close else
+                    f"remove it; the keys of [[person]] are {', '.join(sorted(PERSON_KEYS))}")
         if not all(isinstance(row.get(k, ""), str) for k in PERSON_KEYS) or not row.get("id") or not row.get("name"):
             problem(key, "a person needs text id and name", 'write id = "jdoe" and name = "..."')
             continue

@@ -51,6 +51,15 @@ QUERY_FUNCTIONS = {
 }
 QUERY_NAMES = frozenset(QUERY_FUNCTIONS)
 _FUNCTION_LIST = ", ".join(sorted(MATH_FUNCTIONS) + ["dot", "ddot"])
+_SYNTAX_NAMES = {
+    "ListComp": "a list comprehension", "SetComp": "a set comprehension",
+    "DictComp": "a dict comprehension", "GeneratorExp": "a generator expression",
+    "NamedExpr": "assignment (:=)", "Starred": "'*' unpacking", "Compare": "a comparison",
+    "BoolOp": "and/or", "IfExp": "if ... else", "List": "a list [...]", "Tuple": "a tuple (a, b)",
+    "Dict": "a dict {...}", "Set": "a set {...}", "JoinedStr": "an f-string",
+    "Await": "await", "Yield": "yield", "YieldFrom": "yield", "Slice": "a slice",
+    "UnaryOp": "this operator (not, ~)", "BinOp": "this operator (only + - * / ** are allowed)",
+}
 RESERVED_NAMES = frozenset({"t", "pi", "dot", "ddot"} | set(MATH_FUNCTIONS) | QUERY_NAMES)
 
 
@@ -206,7 +215,8 @@ class _Converter:
             self.fail(node, "subscripts are not allowed", "use plain names such as x_1")
         if isinstance(node, ast.Lambda):
             self.fail(node, "lambda is not allowed", "write a plain expression")
-        self.fail(node, f"'{type(node).__name__}' is not part of the expression language",
+        what = _SYNTAX_NAMES.get(type(node).__name__, f"'{type(node).__name__}'")
+        self.fail(node, f"{what} is not part of the expression language",
                   "use numbers, names, + - * / **, parentheses and the listed functions")
 
     def _constant(self, node: ast.Constant) -> sp.Expr:

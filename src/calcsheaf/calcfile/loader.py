@@ -56,14 +56,15 @@ ARRAYS = {"assumption", "reference", "point_force", "constraint", "output", "res
           "criterion", "crosscheck"}
 
 
-def _close(name: str, candidates) -> str | None:
+def closest(name: str, candidates) -> str | None:
+    """The candidate nearest to `name` when one is close enough, else None."""
     close = difflib.get_close_matches(name, sorted(candidates), n=1)
     return close[0] if close else None
 
 
 def did_you_mean(name: str, candidates) -> str:
     """' (did you mean 'x'?)' when a candidate is close to `name`, else ''."""
-    close = _close(name, candidates)
+    close = closest(name, candidates)
     return f" (did you mean '{close}'?)" if close else ""
 
 
@@ -137,7 +138,7 @@ class _CalcLoader:
         allowed = required | optional
         corrected = set()
         for name in sorted(set(value) - allowed):
-            close = _close(name, allowed - set(value))
+            close = closest(name, allowed - set(value))
             if close:
                 corrected.add(close)
                 self.problem(f"{key}.{name}", f"unknown key '{name}' (did you mean '{close}'?)",
@@ -196,7 +197,9 @@ class _CalcLoader:
         if value is None:
             return default
         if not isinstance(value, bool):
-            self.problem(key, f"must be true or false, got {_kind(value)}", "write true or false")
+            self.problem(key, f"must be true or false, got {_kind(value)} {value!r}",
+                         f"write {key.rpartition('.')[2]} = true or {key.rpartition('.')[2]} = false, "
+                         "without quotes")
             return default
         return value
 
@@ -258,7 +261,7 @@ class _CalcLoader:
     def load(self) -> S.CalcSpec:
         corrected = set()
         for name in sorted(set(self.data) - set(TOP_KEYS)):
-            close = _close(name, set(TOP_KEYS) - set(self.data))
+            close = closest(name, set(TOP_KEYS) - set(self.data))
             if close:
                 corrected.add(close)
                 self.problem(name, f"unknown table '{name}' (did you mean '{close}'?)",
@@ -390,13 +393,18 @@ class _CalcLoader:
             if not isinstance(value, dict):
                 value = {"value": value}
             row = self.table(key, value, *TABLE_KEYS["parameter"])
-            if self.name(key, name, names) is None or "value" not in row:
+            if self.name(key, name, names) is None:
+                continue
+            if "value" not in row:
+                self.broken.add(key)
+                self.dims[name] = None
                 continue
             source = self.string(f"{key}.source", row.get("source"), "")
             if source and source not in ids:
                 self.problem(f"{key}.source", f"source '{source}' is not an assumption or reference id"
                              f"{did_you_mean(source, ids)}",
-                             "name the id of an [[assumption]] or [[reference]] of this calc")
+                             "name the id of an [[assumption]] or [[reference]] of this calc"
+                             + (f" ({', '.join(sorted(ids))})" if ids else ""))
             quantity = self.attempt(lambda: self.quantity(key, row["value"]))
             if quantity is None:
                 self.broken.add(key)
@@ -525,12 +533,21 @@ class _CalcLoader:
             wanted[c.name] = c.dimension
             wanted[f"dot({c.name})"] = c.dimension / ureg.second.dimensionality
         skipped = {n for b in self._broken("coordinates") for n in (b, f"dot({b})")}
+        corrected = set()
         for name in sorted(set(block) - set(wanted) - skipped):
-            self.problem(f"initial.{name}", f"'{name}' is not a coordinate or velocity"
-                         f"{did_you_mean(name, wanted)}", 'give values for each coordinate q and "dot(q)"')
+            close = closest(name, set(wanted) - set(block))
+            if close:
+                corrected.add(close)
+                self.problem(f"initial.{name}", f"'{name}' is not a coordinate or velocity "
+                             f"(did you mean '{close}'?)", f"rename it to {_toml_key(close)}")
+            else:
+                self.problem(f"initial.{name}", f"'{name}' is not a coordinate or velocity",
+                             "remove it; [initial] gives each coordinate q and its velocity \"dot(q)\"")
         out = []
         for name, dim in wanted.items():
             key = f'initial."{name}"' if "(" in name else f"initial.{name}"
+            if name not in block and name in corrected:
+                continue
             if name not in block:
                 self.problem("initial", f"missing initial value of {name}",
                              f'add {key.split(".", 1)[1]} = "0 {si_unit_text(dim)}" under [initial]')
@@ -720,6 +737,10 @@ class _CalcLoader:
                 continue
             out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance))
         return tuple(out)
+
+
+def _toml_key(name: str) -> str:
+    return f'"{name}"' if "(" in name else name
 
 
 def _is_number(text: str) -> bool:
