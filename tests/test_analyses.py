@@ -826,3 +826,53 @@ def test_rotating_frame_with_damping_above_the_critical_speed_is_unstable(tmp_pa
     report = report_of(tmp_path, rotating_frame_calc(30.0, c=1.0))
     assert not report.equilibrium.stable
     assert "positive real part" in report.equilibrium.verdict
+
+
+# --------------------------------------------------------------------------------------
+# Free-free system: a rigid-body mode
+# --------------------------------------------------------------------------------------
+@pytest.mark.parametrize("c", [0.0, 10.0, 200.0])
+def test_free_free_two_masses_rigid_body_mode_and_stability(tmp_path, c):
+    """Regression: the double zero root splits to about ±1e-7 in floating point, which was read
+    as a growing root ("unstable") and reported as a 1e-7 rad/s rigid-body frequency."""
+    m1, m2, k = 2.0, 3.0, 600.0
+    report = report_of(tmp_path, f"""
+    [calc]
+    number = "A-12"
+    title = "two masses joined by a spring and a damper"
+
+    [parameters]
+    m1 = "{m1} kg"
+    m2 = "{m2} kg"
+    k = "{k} N/m"
+    c = "{c} N*s/m"
+
+    [coordinates]
+    x1 = {{ unit = "m" }}
+    x2 = {{ unit = "m" }}
+
+    [energy]
+    kinetic = "m1/2*dot(x1)**2 + m2/2*dot(x2)**2"
+    potential = "k/2*(x2 - x1)**2"
+    dissipation = "c/2*(dot(x2) - dot(x1))**2"
+
+    [initial]
+    x1 = "0.01 m"
+    x2 = "0 m"
+    "dot(x1)" = "0 m/s"
+    "dot(x2)" = "0 m/s"
+    """)
+    assert report.passed, [c for c in report.checks if not c.passed]
+    assert report.equilibrium.stable and report.equilibrium.verdict.startswith("neutrally stable")
+    rigid, elastic = report.modes
+    assert rigid.kind == "rigid-body" and rigid.natural_frequency_rad_s == 0.0
+    assert rigid.shape == pytest.approx({"x1": 1.0, "x2": 1.0})
+    # Free-free two-mass system: omega^2 = k (m1 + m2) / (m1 m2), amplitude ratio x2/x1 = −m1/m2,
+    # damping ratio c / (2 sqrt(k mu)) with mu = m1 m2 / (m1 + m2)
+    # (Thomson & Dahleh, 5th ed., ch. 5, semidefinite systems, from memory).
+    mu = m1 * m2 / (m1 + m2)
+    assert elastic.natural_frequency_rad_s == pytest.approx(math.sqrt(k / mu), rel=1e-12)
+    assert elastic.shape["x2"] == pytest.approx(-m1 / m2, rel=1e-12)
+    zeta = c / (2 * math.sqrt(k * mu))
+    assert elastic.damping_ratio == pytest.approx(zeta, rel=1e-10, abs=1e-12)
+    assert elastic.kind == ("overdamped" if zeta > 1 else "oscillatory")

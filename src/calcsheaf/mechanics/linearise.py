@@ -21,6 +21,8 @@ from .codegen import numeric
 from .lagrange import Derivation, jacobian_ae
 
 RIGID_TOL = 1e-9
+ZERO_ROOT = 1e-6           # |s| below this times the largest |s| is a zero (rigid-body) root:
+                           # a double zero root splits to about sqrt(machine eps) in floating point
 
 
 @dataclass(frozen=True)
@@ -75,7 +77,7 @@ def stability(linear: Linear) -> tuple[bool, str]:
     eig = np.linalg.eigvalsh(K) if K.size else np.zeros(0)
     scale = max(1.0, float(np.max(np.abs(eig)))) if eig.size else 1.0
     roots = _state_roots(linear)
-    growing = [s for s in roots if s.real > 1e-9 * max(1.0, abs(s))]
+    growing = [s for s in _nonzero(roots) if s.real > 1e-9 * max(1.0, abs(s))]
     negative = bool(eig.size and eig.min() < -RIGID_TOL * scale)
     if negative and not _has_skew_parts(linear):
         return False, "unstable: the stiffness at the equilibrium has a negative eigenvalue"
@@ -123,7 +125,7 @@ def modes(linear: Linear, names: tuple[str, ...]) -> tuple[Mode, ...]:
         kind = "oscillatory"
         omega = float(np.sqrt(value)) if value > 0 else 0.0
         if abs(value) <= RIGID_TOL * scale:
-            kind = "rigid-body"
+            kind, omega = "rigid-body", 0.0
         elif value < 0:
             kind = "unstable"
         zeta, wd = _match(damped, omega) if kind == "oscillatory" else (float("nan"), 0.0)
@@ -184,8 +186,16 @@ def _state_space_modes(linear: Linear, names: tuple[str, ...]) -> tuple[Mode, ..
                  for i, (wn, kind, zeta, wd, shape) in enumerate(found[:r]))
 
 
+def _nonzero(roots: np.ndarray) -> np.ndarray:
+    """The roots that are not numerically zero (see ZERO_ROOT)."""
+    if not roots.size:
+        return roots
+    return roots[np.abs(roots) > ZERO_ROOT * max(1.0, float(np.max(np.abs(roots))))]
+
+
 def _damped_pairs(roots: np.ndarray) -> list[tuple[float, float, float]]:
     """(ω_n, ζ, ω_d) of each oscillatory pair and each pair of real (overdamped) roots."""
+    roots = _nonzero(roots)
     pairs = []
     osc = sorted((s for s in roots if s.imag > 1e-12 * max(1.0, abs(s))), key=abs)
     for s in osc:
