@@ -10,8 +10,10 @@ natural_frequency, ...) become undefined sympy functions, evaluated later.
 from __future__ import annotations
 
 import ast
+import cmath
 import difflib
 import math
+import warnings
 from dataclasses import dataclass, field
 
 import sympy as sp
@@ -50,6 +52,10 @@ QUERY_FUNCTIONS = {
     "frf_peak_frequency": (1, "response"),
 }
 QUERY_NAMES = frozenset(QUERY_FUNCTIONS)
+# Numeric twins of the one-argument functions, to test a call on a number before sympy does.
+_NUMERIC = {"sin": cmath.sin, "cos": cmath.cos, "tan": cmath.tan, "asin": cmath.asin,
+            "acos": cmath.acos, "atan": cmath.atan, "sinh": cmath.sinh, "cosh": cmath.cosh,
+            "tanh": cmath.tanh, "exp": cmath.exp, "log": cmath.log, "sqrt": cmath.sqrt}
 _FUNCTION_LIST = ", ".join(sorted(MATH_FUNCTIONS) + ["dot", "ddot"])
 _SYNTAX_NAMES = {
     "ListComp": "a list comprehension", "SetComp": "a set comprehension",
@@ -134,7 +140,9 @@ def parse_expression(text, scope: Scope, where: Where = Where()) -> sp.Expr:
         raise _error(where, "expression is empty", 'write an expression, or "0"')
     lead = len(text) - len(text.lstrip())
     try:
-        tree = ast.parse(text.strip(), mode="eval")
+        with warnings.catch_warnings():        # e.g. "invalid decimal literal": the error says it
+            warnings.simplefilter("ignore", SyntaxWarning)
+            tree = ast.parse(text.strip(), mode="eval")
     except SyntaxError as exc:
         offset = lead + exc.offset if exc.offset else None
         raise _error(where, f"cannot read the expression: {exc.msg}{_character(where, offset)}",
@@ -145,6 +153,10 @@ def parse_expression(text, scope: Scope, where: Where = Where()) -> sp.Expr:
                      "simplify it or split it into parameters") from None
     _check_size(tree, where)
     return _Converter(scope, where, text.strip(), lead).convert(tree.body, depth=0)
+
+
+def _short_number(value: float) -> str:
+    return f"{value:.6g}"
 
 
 def _character(where: Where, offset: int | None) -> str:
@@ -182,10 +194,20 @@ class _Converter:
         self.text = text
         self.lead = lead
 
+    def offset(self, node: ast.AST) -> int | None:
+        """1-based character position of `node` in the text as written (ast counts UTF-8 bytes)."""
+        col = getattr(node, "col_offset", None)
+        if col is None:
+            return None
+        lines = self.text.split("\n")
+        row = getattr(node, "lineno", 1) - 1
+        before = sum(len(line) + 1 for line in lines[:row])
+        chars = len(lines[row].encode("utf-8")[:col].decode("utf-8", "ignore"))
+        return self.lead + before + chars + 1
+
     def fail(self, node: ast.AST, problem: str, fix: str | None = None, *, quote: bool = True):
         """Raise ExpressionError at `node`; `quote` adds the offending text when it is short."""
-        col = getattr(node, "col_offset", None)
-        offset = self.lead + col + 1 if col is not None else None
+        offset = self.offset(node)
         token = ast.get_source_segment(self.text, node) if hasattr(node, "lineno") else None
         if quote and token:
             problem += f" in '{token}'" if len(token) <= 60 else f" in '{token[:57]}...'"
@@ -271,6 +293,28 @@ class _Converter:
         self._check_power(node, left, right)
         return left ** right
 
+    def _check_numeric_call(self, node: ast.AST, name: str, args: list[sp.Expr]) -> None:
+        """Refuse a call on numbers whose value is not a finite real number (before sympy
+        evaluates it: exp(exp(1e5)) would otherwise build a number with 10**43429 digits)."""
+        values = [complex(a.evalf(15)) for a in args]
+        if any(abs(v.imag) > 1e-12 * max(1.0, abs(v.real)) for v in values):
+            self.fail(node, f"an argument of {name}() is not a real number", "check the signs")
+        numeric = _NUMERIC.get(name)
+        if numeric is None:
+            return
+        try:
+            value = numeric(values[0].real)
+        except (OverflowError, ValueError, ZeroDivisionError):
+            value = complex("nan")
+        if not cmath.isfinite(value):
+            self.fail(node, f"{name}() of {_short_number(values[0].real)} is not a finite number",
+                      "check the argument: exp, sinh and cosh overflow above about 700, log needs a "
+                      "positive value")
+        if abs(value.imag) > 1e-12 * max(1.0, abs(value.real)):
+            self.fail(node, f"{name}() of {_short_number(values[0].real)} is not a real number",
+                      "check the argument: sqrt and log need positive values, asin and acos "
+                      "values between -1 and 1")
+
     def _check_power(self, node: ast.AST, base: sp.Expr, exponent: sp.Expr) -> None:
         if not exponent.is_number:
             return
@@ -284,6 +328,9 @@ class _Converter:
                 self.fail(node, "numeric power is too large", "use a smaller number")
             if magnitude == 0 and value.real < 0:
                 self.fail(node, "zero to a negative power", "check the exponent")
+            if complex(base.evalf(15)).real < 0 and not exponent.is_integer:
+                self.fail(node, "a negative number to a fractional power is not real",
+                          "check the signs, or write -(a**b)")
 
     def _call(self, node: ast.Call, depth: int, in_series: bool) -> sp.Expr:
         if not isinstance(node.func, ast.Name):
@@ -306,7 +353,13 @@ class _Converter:
                 self.fail(node, f"{name}() takes two or more arguments here",
                           f"write {name}(a, b)")
             args = [self.convert(a, depth + 1, in_series) for a in node.args]
-            return func(*args)
+            if all(a.is_number for a in args):
+                self._check_numeric_call(node, name, args)
+            try:
+                return func(*args)
+            except (ValueError, TypeError, ArithmeticError) as exc:
+                self.fail(node, f"{name}() cannot be applied to these arguments ({exc})",
+                          "give it real, finite arguments")
         if name in QUERY_NAMES:
             self.fail(node, f"query function {name}() is only allowed in results, criteria "
                       "and crosscheck comparisons", "move it to a [[result]]")
