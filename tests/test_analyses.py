@@ -612,7 +612,7 @@ def test_results_json_has_the_design_fields(tmp_path, monkeypatch):
     # take most of a cold build's time (about 80 s); here they are left out so that only the
     # analysis -> results.json path runs.
     monkeypatch.setattr(publish.pdf, "calc_pdf", lambda page, attachments: b"")
-    monkeypatch.setattr(publish.pdf, "project_pdf", lambda package, pages, attachments: b"")
+    monkeypatch.setattr(publish.pdf, "project_pdf", lambda package, calc_pdfs, attachments: b"")
     monkeypatch.setattr(selftest_command, "cached_selftest_files", lambda: {})
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
     root = tmp_path / "proj"

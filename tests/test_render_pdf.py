@@ -98,8 +98,9 @@ def test_project_pdf_numbers_sheets_per_calc(tmp_path):
     calcs = [failed_report("C-601"), failed_report("C-602")]
     pkg = package(tmp_path, calcs)
     pages = [render_calc(c, pkg.project, build_date=pkg.build_date) for c in calcs]
+    calc_pdfs = [calc_pdf(page, {}) for page in pages]
     files = {"C-601/C-601.toml": b"a", "C-602/C-602.toml": b"b"}
-    data = project_pdf(pkg, pages, files)
+    data = project_pdf(pkg, calc_pdfs, files)
     sheets = _sheets(data)
     assert "Calculation package index" in sheets[0]
     calc_sheets = [s for s in sheets if "C-60" in s and "Calculation package index" not in s]
@@ -108,7 +109,7 @@ def test_project_pdf_numbers_sheets_per_calc(tmp_path):
         assert own and all(f"Sheet {i} of {len(own)}" in s for i, s in enumerate(own, 1))
     reader = pypdf.PdfReader(io.BytesIO(data))
     assert {n: d[0] for n, d in reader.attachments.items()} == files
-    assert project_pdf(pkg, pages, files) == data
+    assert project_pdf(pkg, calc_pdfs, files) == data
 
 
 def test_fetcher_serves_only_package_files():

@@ -57,3 +57,16 @@ class Cache:
             os.replace(temp, path)
         except OSError:
             pass
+
+
+def tree_digest(root: Path, names: tuple[str, ...]) -> str:
+    """SHA-256 over the names and bytes of the given files and folders under `root`, sorted."""
+    digest = hashlib.sha256()
+    for name in names:
+        path = Path(root) / name
+        items = [path] if path.is_file() else sorted(p for p in path.rglob("*") if p.is_file()) \
+            if path.is_dir() else []
+        for item in items:
+            digest.update(item.relative_to(root).as_posix().encode() + b"\0")
+            digest.update(hashlib.sha256(item.read_bytes()).digest())
+    return digest.hexdigest()

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import os
 from dataclasses import dataclass
 from pathlib import Path
@@ -56,25 +57,33 @@ def _refuse_duplicate_numbers(outcomes: list[Outcome]) -> None:
         seen[number] = o.path
 
 
-def cached_outcomes(root: Path, cache, jobs: int | None = None, progress=None) -> list[Outcome]:
-    """Outcomes of every calc, analysing only calcs whose cache entry is missing."""
-    from .cache import key
+def build_calcs(root: Path, project: ProjectInfo, cache, jobs: int | None, progress,
+                date: str) -> list[tuple[CalcReport, dict[str, bytes]]]:
+    """(report, site files) of every calc; only calcs whose inputs changed are redone.
+
+    A calc is analysed and rendered in its own limited process; the cache key is
+    the calc file, the project's records (project.toml, sign-offs, issued
+    revisions, template overrides), the build date and the tool's code.
+    """
+    from .cache import key, tree_digest
+    from .commands import publish
 
     paths = calc_files(root)
-    keys = [key("report", p.read_bytes()) for p in paths]
-    reports = [cache.get("report", k) for k in keys]
-    todo = [i for i, r in enumerate(reports) if r is None]
-    fresh = analyse_paths([paths[i] for i in todo], jobs, progress)
-    for i, report in zip(todo, fresh):
-        report.source_path = paths[i]
-        reports[i] = report
+    records = tree_digest(root, publish.RECORDS)
+    keys = [key("calc", p.name, p.read_bytes(), records, date) for p in paths]
+    entries = [cache.get("calc", k) for k in keys]
+    todo = [i for i, e in enumerate(entries) if e is None]
+    work = functools.partial(publish.analyse_and_render, project=project, date=date)
+    fresh = run_isolated(work, [paths[i] for i in todo], jobs or default_jobs(),
+                         lambda path, error: (failed_report(path, error), None), progress)
+    for i, (report, files) in zip(todo, fresh):
+        if files is None:
+            report, files = publish.render_entry(report, project, date)
+        entries[i] = (report, files)
         if not _stopped(report):
-            cache.put("report", keys[i], report)
-    for p, r in zip(paths, reports):
-        r.source_path = p
-    outcomes = [Outcome(p, r) for p, r in zip(paths, reports)]
-    _refuse_duplicate_numbers(outcomes)
-    return outcomes
+            cache.put("calc", keys[i], entries[i])
+    _refuse_duplicate_numbers([Outcome(p, r) for p, (r, _) in zip(paths, entries)])
+    return entries
 
 
 def _stopped(report: CalcReport) -> bool:

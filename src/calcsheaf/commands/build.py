@@ -22,7 +22,7 @@ from pathlib import Path
 
 from filelock import FileLock, Timeout
 
-from ..cache import Cache, key
+from ..cache import Cache, key, tree_digest
 from ..errors import BuildError, InputError
 
 WATCHED = ("project.toml", "calcs", "signoffs", "issued", "templates")
@@ -55,18 +55,18 @@ def build(project_root: Path, out_dir: Path | None = None, jobs: int | None = No
 
 def _full_build(root: Path, target: Path, jobs, out, err) -> tuple[int, int, int]:
     from ..model import PackageModel
-    from ..pipeline import cached_outcomes
+    from ..pipeline import build_calcs
     from ..project import load_project
     from ..software import versions
     from . import publish
     from .selftest import cached_selftest_files
 
     project = load_project(root)
-    cache = Cache(root)
-    outcomes = cached_outcomes(root, cache, jobs, progress=_progress(out))
-    package = PackageModel(project=project, calcs=[o.report for o in outcomes], software=versions(),
-                           build_date=publish.build_date())
-    files = publish.site_files(package, cached_selftest_files(), cache)
+    date = publish.build_date()
+    entries = build_calcs(root, project, Cache(root), jobs, _progress(out), date)
+    package = PackageModel(project=project, calcs=[r for r, _ in entries], software=versions(),
+                           build_date=date)
+    files = publish.site_files(package, [f for _, f in entries], cached_selftest_files())
     write_site(target, files)
     failed = [r for r in package.calcs if not r.passed]
     for r in package.calcs:
@@ -87,15 +87,8 @@ def _progress(out):
 
 def input_key(root: Path, target: Path) -> str:
     """SHA-256 over everything a build reads, plus the tool's code fingerprint."""
-    parts = [str(target.resolve()), os.environ.get("SOURCE_DATE_EPOCH", "")]
-    for name in WATCHED:
-        path = root / name
-        items = [path] if path.is_file() else sorted(p for p in path.rglob("*") if p.is_file()) \
-            if path.is_dir() else []
-        for item in items:
-            parts.append(item.relative_to(root).as_posix())
-            parts.append(hashlib.sha256(item.read_bytes()).hexdigest())
-    return key(*parts)
+    return key(str(target.resolve()), os.environ.get("SOURCE_DATE_EPOCH", ""),
+               tree_digest(root, WATCHED))
 
 
 def _up_to_date(target: Path, stamp: Path, site_key: str) -> int | None:

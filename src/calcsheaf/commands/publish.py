@@ -6,14 +6,13 @@ history are read from the project's records (archive), never computed here.
 
 from __future__ import annotations
 
-import json
 import os
 from dataclasses import replace
 from datetime import datetime, timezone
 from pathlib import Path
 
 from ..archive.revisions import revision_history
-from ..cache import key
+from ..fingerprint import code_fingerprint
 from ..archive.signoffs import signoff_status
 from ..model import CalcReport, PackageModel, ProjectInfo
 from ..render import html, pdf, site
@@ -56,32 +55,38 @@ def calc_files(report: CalcReport, project: ProjectInfo, date: str, images: Equa
     return files, page
 
 
-def site_files(package: PackageModel, selftest: dict[str, bytes] | None = None,
-               cache=None) -> dict[str, bytes]:
-    """Every file of the site except SHA256SUMS; unchanged calcs come from `cache`."""
-    images = EquationImages(package.project.root / ".calcsheaf-cache" / "equations")
+RECORDS = ("project.toml", "signoffs", "issued", "templates")
+
+
+def equation_images(project: ProjectInfo) -> EquationImages:
+    return EquationImages(project.root / ".calcsheaf-cache" / "equations" / code_fingerprint())
+
+
+def render_entry(report: CalcReport, project: ProjectInfo, date: str) -> tuple[CalcReport, dict[str, bytes]]:
+    """The report with its issue status, and its site files."""
+    report, history, signoff = with_status(report, project)
+    files, _ = calc_files(report, project, date, equation_images(project), history=history,
+                          signoff=signoff)
+    return report, files
+
+
+def analyse_and_render(path: Path, *, project: ProjectInfo, date: str):
+    """Worker: one calc from its file to its site files (runs in an isolated process)."""
+    from ..pipeline import analyse_one
+    return render_entry(analyse_one(path), project, date)
+
+
+def site_files(package: PackageModel, calc_files_list: list[dict[str, bytes]],
+               selftest: dict[str, bytes] | None = None) -> dict[str, bytes]:
+    """Every file of the site except SHA256SUMS: calcs, static theme, index, project PDF."""
     files: dict[str, bytes] = {}
-    pages, shown, attachments = [], [], {}
-    project_text = (package.project.root / "project.toml").read_bytes()
-    for report in package.calcs:
-        report, history, signoff = with_status(report, package.project)
-        shown.append(report)
-        entry = key("calc-files", report.input_hash, report.source_path.name, project_text,
-                    json.dumps([history, signoff], sort_keys=True, default=str), package.build_date)
-        cached = cache.get("calc-files", entry) if cache is not None else None
-        if cached is None:
-            cached = calc_files(report, package.project, package.build_date, images,
-                                history=history, signoff=signoff)
-            if cache is not None:
-                cache.put("calc-files", entry, cached)
-        calc, page = cached
+    for calc in calc_files_list:
         files.update(calc)
-        pages.append(page)
-        attachments[f"{report.number}/{report.number}.toml"] = report.source_text.encode("utf-8")
-    package = replace(package, calcs=shown)
+    attachments = {f"{r.number}/{r.number}.toml": r.source_text.encode("utf-8") for r in package.calcs}
     files.update(html.site_static(package.project))
     files[site.INDEX_PAGE] = html.render_index(package).encode("utf-8")
-    files[site.project_pdf_path(package.project.number)] = pdf.project_pdf(package, pages, attachments)
+    calc_pdfs = [files[site.calc_pdf_path(r.number)] for r in package.calcs]
+    files[site.project_pdf_path(package.project.number)] = pdf.project_pdf(package, calc_pdfs, attachments)
     files.update(selftest or {})
     return files
 
@@ -103,7 +108,7 @@ def build_calc(project_root: Path, calc_number: str, out_dir: Path, *, status: s
                          fix="give the calc number from its [calc] number key")
     report = replace(report, status=status, revision=revision)
     history = revision_history(project.root, calc_number)
-    files, _ = calc_files(report, project, build_date(), EquationImages(), history=history,
+    files, _ = calc_files(report, project, build_date(), equation_images(project), history=history,
                           signoff=signoff)
     out_dir = Path(out_dir)
     prefix = site.calc_dir(calc_number) + "/"

@@ -8,6 +8,7 @@ LaTeX text in memory and, when a folder is given, on disk.
 from __future__ import annotations
 
 import hashlib
+import os
 from pathlib import Path
 
 import ziamath
@@ -62,6 +63,6 @@ class EquationImages:
         if self.folder is None:
             return
         self.folder.mkdir(parents=True, exist_ok=True)
-        partial = self.folder / f"{key}.svg.part"
+        partial = self.folder / f"{key}.svg.part-{os.getpid()}"
         partial.write_bytes(data)
         partial.replace(self.folder / f"{key}.svg")

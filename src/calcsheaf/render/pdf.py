@@ -9,12 +9,14 @@ the build date (SOURCE_DATE_EPOCH), so two builds give identical bytes.
 
 from __future__ import annotations
 
+import hashlib
 import io
 import mimetypes
 import posixpath
 from collections.abc import Mapping, Sequence
 from datetime import datetime, timezone
 
+import pypdf
 import weasyprint
 from weasyprint.urls import FatalURLFetchingError, URLFetcher, URLFetcherResponse
 
@@ -85,16 +87,26 @@ def calc_pdf(page: CalcPage, attachments: Mapping[str, bytes]) -> bytes:
     return _write(document, attachments, page.build_date)
 
 
-def project_pdf(package: PackageModel, pages: Sequence[CalcPage],
+def project_pdf(package: PackageModel, calc_pdfs: Sequence[bytes],
                 attachments: Mapping[str, bytes]) -> bytes:
-    """One PDF of the whole project: index sheet(s), then each calc with its own sheet numbers.
+    """One PDF of the whole project: the index sheet(s), then each calc's own PDF.
 
-    `pages` are the rendered calcs (from `html.render_calc`) in package order;
-    `attachments` maps names (e.g. `C-102/C-102.toml`) to bytes.
+    The calcs' PDFs are appended as they are (each keeps its own sheet numbers),
+    so no calc is laid out twice.  `attachments` maps names (e.g. `C-102/C-102.toml`)
+    to bytes.  The identifier is a hash of the parts, so equal inputs give equal bytes.
     """
-    cover = _document(render_index(package, medium="print"), site.INDEX_PAGE,
-                      theme.static_assets(package.project.root))
-    documents = [cover] + [_document(p.print_html, site.calc_page_path(p.number),
-                                     p.print_assets) for p in pages]
-    combined = cover.copy([sheet for doc in documents for sheet in doc.pages])
-    return _write(combined, attachments, package.build_date)
+    cover = _write(_document(render_index(package, medium="print"), site.INDEX_PAGE,
+                             theme.static_assets(package.project.root)), {}, package.build_date)
+    writer = pypdf.PdfWriter(clone_from=pypdf.PdfReader(io.BytesIO(cover)))
+    digest = hashlib.md5(cover)
+    for part in calc_pdfs:
+        writer.append(pypdf.PdfReader(io.BytesIO(part)))
+        digest.update(part)
+    for name, data in sorted(attachments.items()):
+        writer.add_attachment(name, data)
+        digest.update(name.encode() + data)
+    identifier = pypdf.generic.ByteStringObject(digest.digest())
+    writer._ID = pypdf.generic.ArrayObject([identifier, identifier])
+    out = io.BytesIO()
+    writer.write(out)
+    return out.getvalue()
