@@ -120,21 +120,7 @@ def assert_refused(case: str, code: int, out: str, err: str, expected: Path, fil
     assert not missing, f"{case}: missing {missing}\n{text}"
 
 
-# Cases whose message is still short of the rule, with the module that must change.
-# strict: once fixed, the test reports XPASS as a failure and the entry must go.
-KNOWN_GAPS = {
-    "integration_blowup": "a failed integration is reported without the calc file and without "
-                          "a fix (analysis.py: the solver Check's detail)",
-}
-
-
-def _case_param(case: str):
-    if case in KNOWN_GAPS:
-        return pytest.param(case, marks=pytest.mark.xfail(reason=KNOWN_GAPS[case], strict=True))
-    return case
-
-
-@pytest.mark.parametrize("case", [_case_param(c) for c in CALC_CASES])
+@pytest.mark.parametrize("case", CALC_CASES)
 def test_bad_calc_is_refused_by_check(case, tmp_path, run_cli, monkeypatch):
     monkeypatch.chdir(tmp_path)
     calc_project(tmp_path, case)
@@ -155,9 +141,6 @@ def test_bad_project_is_refused_by_check(case, tmp_path, run_cli, monkeypatch):
     assert SECRET not in out + err
 
 
-@pytest.mark.xfail(strict=True, reason="render/theme.py renders project templates in a plain "
-                   "jinja2.Environment: a template override can run any command during build "
-                   "(needs jinja2.sandbox.ImmutableSandboxedEnvironment)")
 @pytest.mark.parametrize("case", [c for c in PROJECT_CASES if command_of(c) == "build"])
 def test_bad_project_is_refused_by_build(case, tmp_path, run_cli, monkeypatch):
     monkeypatch.chdir(tmp_path)
@@ -220,9 +203,6 @@ def test_all_bad_calcs_in_one_project_subprocess(all_bad_calcs):
     assert not list(all_bad_calcs.tmp.rglob("calcsheaf-injected"))
 
 
-@pytest.mark.xfail(strict=True, reason="numpy RuntimeWarnings from the analysis of a calc whose "
-                   "equations divide by zero reach stderr (isolation child / mechanics should "
-                   "silence them and report the calc as failed)")
 def test_no_python_warning_reaches_the_user(all_bad_calcs):
     assert "Warning" not in all_bad_calcs.stderr, all_bad_calcs.stderr
 

@@ -210,3 +210,38 @@ def test_jobs_must_be_positive(tmp_path, capsys):
         main(["build", str(tmp_path), "--jobs", "0"])
     assert exc.value.code == 2
     assert "--jobs must be a whole number of at least 1" in capsys.readouterr().err
+
+
+def test_build_never_writes_into_issued(tmp_path):
+    project = make_project(tmp_path / "p", {"a.toml": tiny("C-1")})
+    frozen = project / "issued" / "C-1" / "A"
+    frozen.mkdir(parents=True)
+    (frozen / "MANIFEST.json").write_text("{}\n")
+    before = snapshot(project / "issued")
+    assert main(["build", str(project)]) == 0
+    assert snapshot(project / "issued") == before
+
+
+def test_preview_serves_the_site_on_loopback_and_rebuilds_on_change(tmp_path):
+    import io
+    import re
+    import threading
+    import urllib.request
+
+    from calcsheaf.commands.preview import preview
+
+    project = make_project(tmp_path / "p", {"a.toml": tiny("C-1")})
+    out = io.StringIO()
+    worker = threading.Thread(target=preview, args=(project,), kwargs={"port": 0, "out": out, "polls": 40})
+    worker.start()
+    deadline = time.monotonic() + 300
+    while "serving" not in out.getvalue() and time.monotonic() < deadline:
+        time.sleep(0.2)
+    port = int(re.search(r"127\.0\.0\.1:(\d+)/", out.getvalue()).group(1))
+    page = urllib.request.urlopen(f"http://127.0.0.1:{port}/C-1/index.html", timeout=30).read()
+    assert b"Mass on a spring (C-1)" in page
+    (project / "calcs" / "a.toml").write_text(tiny("C-1", 12.0).replace("Mass on a spring", "Edited mass"))
+    while "rebuilding" not in out.getvalue() and time.monotonic() < deadline:
+        time.sleep(0.2)
+    worker.join(timeout=300)
+    assert b"Edited mass" in (project / "_site" / "C-1" / "index.html").read_bytes()

@@ -197,8 +197,12 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
     first, second = simulate.integrate(system, th, np.concatenate([q0, qd0]), powers)
     for run, role in ((first, "primary"), (second, "independent")):
         s = run.solver
-        checks.append(m.Check("solver", f"{role} integrator ({s.method})", s.success,
-                              f"status {s.status}: {s.message}; {s.nfev} evaluations"))
+        detail = f"status {s.status}: {s.message}; {s.nfev} evaluations"
+        if not s.success:
+            line = spec.line("time_history")
+            detail = (f"{spec.path}:{line}: time_history: {detail}. Fix: check the energies and forces "
+                      "for terms that grow without bound or divide by zero, or shorten the duration")
+        checks.append(m.Check("solver", f"{role} integrator ({s.method})", s.success, detail))
     if not first.solver.success:
         report.time_history = m.TimeHistory(t=first.t[:0], series=(), primary=first.solver,
                                             secondary=second.solver, agreement=float("nan"),

@@ -12,10 +12,13 @@ import os
 import pickle
 import resource
 import time
+import warnings
 from pathlib import Path
 from typing import Callable
 
-from .errors import AnalysisError
+import numpy as np
+
+from .errors import AnalysisError, CalcsheafError
 
 TIME_LIMIT_S = float(os.environ.get("CALCSHEAF_CALC_TIME_LIMIT", "300"))
 MEMORY_LIMIT_BYTES = int(float(os.environ.get("CALCSHEAF_CALC_MEMORY_LIMIT_GB", "4")) * 2 ** 30)
@@ -26,14 +29,30 @@ def _child(fn: Callable, path: Path, conn) -> None:
         resource.setrlimit(resource.RLIMIT_AS, (MEMORY_LIMIT_BYTES, MEMORY_LIMIT_BYTES))
     except (ValueError, OSError):
         pass
+    warnings.simplefilter("ignore")          # numerical warnings become checks, not noise
+    np.seterr(all="ignore")
     try:
         result = fn(path)
-        conn.send_bytes(pickle.dumps(result))
     except MemoryError:
-        conn.send_bytes(pickle.dumps(_limit_error(path, "ran out of its memory limit of "
-                                                  f"{MEMORY_LIMIT_BYTES / 2 ** 30:g} GiB")))
+        result = _Failure(_limit_error(path, "ran out of its memory limit of "
+                                       f"{MEMORY_LIMIT_BYTES / 2 ** 30:g} GiB"))
+    except CalcsheafError as exc:
+        result = _Failure(exc)
+    except Exception as exc:  # a fault inside calcsheaf: this calc fails alone, with the reason
+        result = _Failure(AnalysisError(
+            f"the analysis stopped on an internal error ({type(exc).__name__}: {exc})", file=path,
+            fix="report this calc file with the message; meanwhile simplify the expression involved"))
+    try:
+        conn.send_bytes(pickle.dumps(result))
     finally:
         conn.close()
+
+
+class _Failure:
+    """A child's refusal, sent back to the parent in place of a result."""
+
+    def __init__(self, error: CalcsheafError) -> None:
+        self.error = error
 
 
 def _limit_error(path: Path, what: str) -> AnalysisError:
@@ -66,7 +85,8 @@ def run_isolated(fn: Callable, paths: list[Path], jobs: int, on_failure: Callabl
         for i, (proc, receive, started, path) in list(running.items()):
             if receive.poll(0.02):
                 try:
-                    results[i] = pickle.loads(receive.recv_bytes())
+                    value = pickle.loads(receive.recv_bytes())
+                    results[i] = on_failure(path, value.error) if isinstance(value, _Failure) else value
                 except (EOFError, OSError, pickle.UnpicklingError):
                     results[i] = on_failure(path, _limit_error(path, "process ended unexpectedly"))
                 proc.join()

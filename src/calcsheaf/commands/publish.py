@@ -112,6 +112,10 @@ def build_calc(project_root: Path, calc_number: str, out_dir: Path, *, status: s
                           signoff=signoff)
     out_dir = Path(out_dir)
     prefix = site.calc_dir(calc_number) + "/"
+    page = site.calc_page_path(calc_number)
+    # A frozen calc folder stands alone: the theme's files go inside it.
+    files[page] = files[page].replace(b'href="../static/', b'href="static/')
+    files.update(html.site_static(project))
     for rel, data in sorted(files.items()):
         local = rel[len(prefix):] if rel.startswith(prefix) else rel
         path = out_dir / local

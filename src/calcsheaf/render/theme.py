@@ -13,6 +13,7 @@ from importlib import resources
 from pathlib import Path
 
 import jinja2
+from jinja2.sandbox import ImmutableSandboxedEnvironment
 from markupsafe import Markup
 
 from calcsheaf.errors import BuildError
@@ -49,7 +50,7 @@ def environment(project_root: Path | None) -> jinja2.Environment:
     """Jinja2 environment: autoescape on, undefined names are errors, theme filters."""
     loaders = [jinja2.FileSystemLoader(str(folder)) for folder in theme_dirs(project_root)]
     loader = jinja2.ChoiceLoader(loaders)
-    env = jinja2.Environment(loader=loader, autoescape=True, undefined=jinja2.StrictUndefined,
+    env = ImmutableSandboxedEnvironment(loader=loader, autoescape=True, undefined=jinja2.StrictUndefined,
                              keep_trailing_newline=True, trim_blocks=True, lstrip_blocks=True)
     env.filters.update({
         "num": formatting.number,
@@ -78,10 +79,12 @@ def static_assets(project_root: Path | None) -> dict[str, bytes]:
 
 def render(env: jinja2.Environment, name: str, **context) -> str:
     """Render template `name`; template faults become BuildError with the template named."""
+    template = None
     try:
-        return env.get_template(name).render(**context)
+        template = env.get_template(name)
+        return template.render(**context)
     except jinja2.TemplateError as exc:
-        where = getattr(exc, "filename", None) or name
+        where = getattr(exc, "filename", None) or getattr(template, "filename", None) or name
         raise BuildError(f"template {name} failed: {exc}", file=where,
                          line=getattr(exc, "lineno", None),
                          fix="correct the template (an override in the project's templates/ "
