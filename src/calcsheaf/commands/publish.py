@@ -16,7 +16,8 @@ from ..fingerprint import code_fingerprint
 from ..archive.signoffs import signoff_status
 from ..model import CalcReport, PackageModel, ProjectInfo
 from ..render import html, pdf, site
-from ..render.json import results_json
+from ..archive.diff import changes_since_issue
+from ..render.json import results_dict, results_json
 from ..render.mathsvg import EquationImages
 
 
@@ -42,8 +43,12 @@ def calc_files(report: CalcReport, project: ProjectInfo, date: str, images: Equa
                history: list[dict] | None = None, signoff: dict | None = None,
                folder: str | None = None) -> tuple[dict[str, bytes], html.CalcPage]:
     """One calc's page, PDF, results.json and assets, keyed by site-root path."""
+    changes = None
+    if history and report.status == "draft" and report.error is None:
+        changes = changes_since_issue(project.root, report.number, report.source_text,
+                                      results_dict(report, project))
     page = html.render_calc(report, project, build_date=date, revisions=history, signoff=signoff,
-                            images=images)
+                            images=images, changes=changes)
     results = results_json(report, project)
     attachments = {report.source_path.name if report.source_path.name.endswith(".toml")
                    else f"{report.number}.toml": report.source_text.encode("utf-8"),

@@ -182,11 +182,12 @@ def _analysed_context(report: CalcReport, collect: _Collector) -> dict:
 
 def render_calc(report: CalcReport, project: ProjectInfo, *, build_date: str = "",
                 revisions: list[dict] | None = None, signoff: dict | None = None,
-                images: EquationImages | None = None) -> CalcPage:
+                images: EquationImages | None = None, changes: dict | None = None) -> CalcPage:
     """Render one calc (a failed one as a short failure page).
 
     `revisions`: dicts with rev, date, status, description, prepared_by, checked_by
-    (oldest first); `signoff`: dict with prepared_by, prepared_date, checked_by,
+    (oldest first); `changes`: what changed since the latest issued revision
+    ({a, b, rows: [{section, item, old, new, change}]}); `signoff`: dict with prepared_by, prepared_date, checked_by,
     checked_date (names and ISO dates as text) and stale_reason (why other
     signatures no longer count, or "").  Other keys are ignored.  `images`
     caches equation SVGs.
@@ -195,6 +196,7 @@ def render_calc(report: CalcReport, project: ProjectInfo, *, build_date: str = "
     collect = _Collector(report.number, images or EquationImages())
     context = _context(report, project, collect, build_date=build_date,
                        revisions=revisions, signoff=signoff)
+    context["changes"] = changes
     if report.error is not None:
         template = "calc_failed.html.j2"
         context.update(cautions=list(GENERAL), error=str(report.error))
