@@ -130,7 +130,7 @@ def test_noop_rebuild_does_nothing_and_edit_rebuilds_only_that_calc(tmp_path, ca
     (project / "calcs" / "b.toml").write_text(tiny("C-2", 25.0))
     assert main(["build", str(project)]) == 0
     out = capsys.readouterr().out
-    assert "analysing b.toml" in out and "analysing a.toml" not in out
+    assert "b.toml: solve" in out and "a.toml: solve" not in out
     after = snapshot(project / "_site")
     assert after["C-1/results.json"] == first["C-1/results.json"]
     assert after["C-2/results.json"] != first["C-2/results.json"]
@@ -145,7 +145,7 @@ def test_corrupt_cache_is_detected_and_rebuilt(tmp_path, capsys):
     (project / "._site.key").unlink()
     capsys.readouterr()
     assert main(["build", str(project)]) == 0
-    assert "analysing a.toml" in capsys.readouterr().out
+    assert "a.toml: solve" in capsys.readouterr().out
     assert snapshot(project / "_site") == first
 
 

@@ -16,6 +16,7 @@ import numpy as np
 from . import model as m
 from .calcfile.loader import load_calc
 from .calcfile.spec import CalcSpec
+from .isolation import stage
 from .software import versions
 from .errors import AnalysisError, CalcsheafError, DerivationError
 from .mechanics import frequency, linearise as lin, simulate
@@ -54,6 +55,7 @@ def analyse(spec: CalcSpec) -> m.CalcReport:
     _check_mass_matrix(spec, system, q0, qd0)
     _check_initial_constraints(spec, system, q0, qd0)
     report.derivation, report.equations = derivation.steps, derivation.equations
+    stage("solve")
     checks = [m.Check("units", "dimensional consistency", True,
                       "every energy, force, output and query expression checked with its units")]
     ctx = QueryContext(spec=spec, derivation=derivation, params=params, system=system)

@@ -24,7 +24,28 @@ TIME_LIMIT_S = float(os.environ.get("CALCSHEAF_CALC_TIME_LIMIT", "300"))
 MEMORY_LIMIT_BYTES = int(float(os.environ.get("CALCSHEAF_CALC_MEMORY_LIMIT_GB", "4")) * 2 ** 30)
 
 
+_stage_channel = None
+
+
+def stage(name: str) -> None:
+    """Report that the calc being analysed has reached stage `name` (derive, solve, render).
+
+    A no-op outside an isolated child process."""
+    if _stage_channel is not None:
+        try:
+            _stage_channel.send_bytes(pickle.dumps(_Stage(name)))
+        except OSError:
+            pass
+
+
+class _Stage:
+    def __init__(self, name: str) -> None:
+        self.name = name
+
+
 def _child(fn: Callable, path: Path, conn) -> None:
+    global _stage_channel
+    _stage_channel = conn
     try:
         resource.setrlimit(resource.RLIMIT_AS, (MEMORY_LIMIT_BYTES, MEMORY_LIMIT_BYTES))
     except (ValueError, OSError):
@@ -80,12 +101,14 @@ def run_isolated(fn: Callable, paths: list[Path], jobs: int, on_failure: Callabl
             proc.start()
             send.close()
             running[i] = (proc, receive, time.monotonic(), path)
-            if progress:
-                progress(path, "started")
         for i, (proc, receive, started, path) in list(running.items()):
             if receive.poll(0.02):
                 try:
                     value = pickle.loads(receive.recv_bytes())
+                    if isinstance(value, _Stage):
+                        if progress:
+                            progress(path, value.name)
+                        continue
                     results[i] = on_failure(path, value.error) if isinstance(value, _Failure) else value
                 except (EOFError, OSError, pickle.UnpicklingError):
                     results[i] = on_failure(path, _limit_error(path, "process ended unexpectedly"))

@@ -10,7 +10,7 @@ from pathlib import Path
 from .analysis import analyse, failed_report
 from .calcfile.loader import load_calc
 from .errors import CalcsheafError, InputError
-from .isolation import run_isolated
+from .isolation import run_isolated, stage
 from .model import CalcReport, ProjectInfo
 from .project import calc_files, load_project
 
@@ -24,6 +24,7 @@ class Outcome:
 def analyse_one(path: Path) -> CalcReport:
     """A calc's report; a calc that cannot be loaded or derived gets a failed report."""
     try:
+        stage("derive")
         return analyse(load_calc(path))
     except CalcsheafError as exc:
         return failed_report(path, exc)

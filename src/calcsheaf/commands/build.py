@@ -77,11 +77,20 @@ def _full_build(root: Path, target: Path, jobs, out, err) -> tuple[int, int, int
 
 
 def _progress(out):
+    """Per-calc stages (derive, solve, render): one line each, or a live status line on a terminal."""
     tty = hasattr(out, "isatty") and out.isatty()
+    current: dict[str, str] = {}
 
     def show(path: Path, stage: str) -> None:
-        text = f"  {'analysing' if stage == 'started' else 'analysed '} {path.name}"
-        print(text, end="\r" if tty else "\n", file=out, flush=True)
+        if not tty:
+            print(f"  {path.name}: {stage}", file=out, flush=True)
+            return
+        if stage == "done":
+            current.pop(path.name, None)
+        else:
+            current[path.name] = stage
+        line = ", ".join(f"{name} {what}" for name, what in sorted(current.items()))
+        print(f"\r\033[K  {line}", end="" if current else "\r\033[K", file=out, flush=True)
     return show
 
 

@@ -13,6 +13,7 @@ from pathlib import Path
 
 from ..archive.revisions import revision_history
 from ..fingerprint import code_fingerprint
+from ..isolation import stage
 from ..archive.signoffs import signoff_status
 from ..model import CalcReport, PackageModel, ProjectInfo
 from ..render import html, pdf, site
@@ -69,6 +70,7 @@ def equation_images(project: ProjectInfo) -> EquationImages:
 
 def render_entry(report: CalcReport, project: ProjectInfo, date: str) -> tuple[CalcReport, dict[str, bytes]]:
     """The report with its issue status, and its site files."""
+    stage("render")
     report, history, signoff = with_status(report, project)
     files, _ = calc_files(report, project, date, equation_images(project), history=history,
                           signoff=signoff)
