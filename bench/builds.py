@@ -20,6 +20,7 @@ from __future__ import annotations
 import os
 import shutil
 import subprocess
+import sys
 import tempfile
 import time
 from pathlib import Path
@@ -79,6 +80,8 @@ def _build(project: Path, jobs: int | None, env: dict) -> float:
     started = time.perf_counter()
     done = subprocess.run(command, capture_output=True, text=True, env=env)
     seconds = time.perf_counter() - started
+    print(f"  {' '.join(command[1:])}: {seconds:.1f} s (exit {done.returncode})", file=sys.stderr,
+          flush=True)
     if done.returncode not in (0, 1) or not (project / "_site").is_dir():
         raise RuntimeError(f"{' '.join(command)} failed ({done.returncode}):\n{done.stderr[-2000:]}")
     if done.returncode == 1:
