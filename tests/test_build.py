@@ -245,3 +245,16 @@ def test_preview_serves_the_site_on_loopback_and_rebuilds_on_change(tmp_path):
         time.sleep(0.2)
     worker.join(timeout=300)
     assert b"Edited mass" in (project / "_site" / "C-1" / "index.html").read_bytes()
+
+
+def test_terminated_build_leaves_no_worker_behind(tmp_path):
+    project = make_project(tmp_path / "p", {"a.toml": tiny("C-1"), "z.toml": RUNAWAY})
+    proc = subprocess.Popen([sys.executable, "-m", "calcsheaf", "build", str(project), "--jobs", "2"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    time.sleep(4.0)
+    proc.terminate()
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode != 0 and "Traceback" not in err
+    time.sleep(0.5)
+    survivors = subprocess.run(["pgrep", "-f", str(project)], capture_output=True, text=True).stdout
+    assert survivors.strip() == "", f"workers left running: {survivors}"

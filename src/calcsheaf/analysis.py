@@ -240,7 +240,8 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
     checks.append(m.Check("energy", "energy audit", report.energy.passed,
                           f"largest relative residual {report.energy.max_relative_residual:.2e} "
                           f"(tolerance {report.energy.tolerance:g})"))
-    report.outputs = tuple(_summary(o, ctx.series(o.expr)) for o in spec.outputs)
+    report.outputs = tuple(_summary(o, ctx.series(o.expr)) for o in spec.outputs) + tuple(
+        _summary(c, LAM[i], label=c.label or "constraint force") for i, c in enumerate(spec.constraints))
     if any(not np.isfinite([s.peak, s.max, s.min]).all() for s in report.outputs):
         checks.append(m.Check("outputs", "outputs finite", False, "an output is not finite"))
 
@@ -259,9 +260,11 @@ def _series(spec, ctx, Q, QD, LAM) -> list[m.Series]:
     return out
 
 
-def _summary(o, values: np.ndarray) -> m.OutputSummary:
+def _summary(o, values: np.ndarray, label: str | None = None) -> m.OutputSummary:
+    """Peak, max and min of an output or constraint force, in its display unit."""
     v = values / o.factor
-    return m.OutputSummary(name=o.name, unit=o.unit, label=o.label, peak=float(np.max(np.abs(v))),
+    return m.OutputSummary(name=o.name, unit=o.unit, label=o.label if label is None else label,
+                           peak=float(np.max(np.abs(v))),
                            max=float(np.max(v)), min=float(np.min(v)))
 
 

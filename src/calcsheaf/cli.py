@@ -8,7 +8,9 @@ from __future__ import annotations
 
 import argparse
 import os
+import signal
 import sys
+import threading
 from pathlib import Path
 
 from . import __version__
@@ -111,7 +113,13 @@ def _run(args) -> int:
     raise UsageError("no command given", fix="run 'calcsheaf --help' for the commands")
 
 
+def _terminate(signum, frame):
+    raise KeyboardInterrupt
+
+
 def main(argv: list[str] | None = None) -> int:
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGTERM, _terminate)   # clean up workers and temporary folders
     parser = make_parser()
     args = parser.parse_args(argv)
     if args.command is None:

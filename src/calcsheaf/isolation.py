@@ -93,6 +93,17 @@ def run_isolated(fn: Callable, paths: list[Path], jobs: int, on_failure: Callabl
     results: dict[int, object] = {}
     pending = list(enumerate(paths))
     running: dict[int, tuple] = {}
+    try:
+        _schedule(ctx, fn, pending, running, results, jobs, on_failure, progress)
+    finally:   # interrupted or terminated: leave no worker behind
+        for proc, receive, _, _ in running.values():
+            proc.kill()
+            proc.join()
+            receive.close()
+    return [results[i] for i in range(len(paths))]
+
+
+def _schedule(ctx, fn, pending, running, results, jobs, on_failure, progress) -> None:
     while pending or running:
         while pending and len(running) < max(1, jobs):
             i, path = pending.pop(0)
@@ -125,4 +136,3 @@ def run_isolated(fn: Callable, paths: list[Path], jobs: int, on_failure: Callabl
             del running[i]
             if progress:
                 progress(path, "done")
-    return [results[i] for i in range(len(paths))]

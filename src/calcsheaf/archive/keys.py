@@ -247,8 +247,15 @@ def get_passphrase(person_id: str, name: str = "", *, confirm: bool = False) -> 
         if os.environ.get(var):
             return os.environ[var]
     who = f"{name} ({person_id})" if name else person_id
-    text = getpass.getpass(f"Passphrase for {who}: ")
-    if confirm and getpass.getpass("Repeat passphrase: ") != text:
+    try:
+        text = getpass.getpass(f"Passphrase for {who}: ")
+        repeat = getpass.getpass("Repeat passphrase: ") if confirm else text
+    except (EOFError, OSError):
+        raise ArchiveError(f"no passphrase for {who}: there is no terminal to ask for it",
+                           key="passphrase",
+                           fix=f"set {passphrase_env(person_id)} (or CALCSHEAF_PASSPHRASE) in the "
+                               "environment") from None
+    if repeat != text:
         raise ArchiveError("the two passphrases differ", key="passphrase", fix="type it again")
     return text
 

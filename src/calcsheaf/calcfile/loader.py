@@ -20,7 +20,7 @@ from . import spec as S
 from .expressions import (RESERVED_NAMES, TIME, Scope, Where, parse_expression, velocity)
 from .text_links import local_targets
 from .toml_source import read_toml, value_column
-from .units import (DIMENSIONLESS, DimensionChecker, describe, dimension_of, parse_quantity,
+from .units import (si_unit_of, DIMENSIONLESS, DimensionChecker, describe, dimension_of, parse_quantity,
                     parse_unit, si_factor, si_unit_text, to_si, ureg)
 
 NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
@@ -412,7 +412,7 @@ class _CalcLoader:
                 continue
             self.dims[name] = quantity.dimensionality
             out.append(S.Parameter(name=name, given=str(row["value"]), value=to_si(quantity),
-                                   unit=si_unit_text(quantity.dimensionality),
+                                   unit=si_unit_of(quantity),
                                    dimension=quantity.dimensionality, source=source,
                                    note=self.string(f"{key}.note", row.get("note"), "")))
         return tuple(out)
@@ -543,6 +543,10 @@ class _CalcLoader:
             else:
                 self.problem(f"initial.{name}", f"'{name}' is not a coordinate or velocity",
                              "remove it; [initial] gives each coordinate q and its velocity \"dot(q)\"")
+        units_of = {}
+        for c in coordinates:
+            units_of[c.name] = c.unit
+            units_of[f"dot({c.name})"] = f"{c.unit}/s" if "/" not in c.unit else f"({c.unit})/s"
         out = []
         for name, dim in wanted.items():
             key = f'initial."{name}"' if "(" in name else f"initial.{name}"
@@ -550,7 +554,7 @@ class _CalcLoader:
                 continue
             if name not in block:
                 self.problem("initial", f"missing initial value of {name}",
-                             f'add {key.split(".", 1)[1]} = "0 {si_unit_text(dim)}" under [initial]')
+                             f'add {key.split(".", 1)[1]} = "0 {units_of[name]}" under [initial]')
                 continue
             self.lines.setdefault(key, self.lines.get(f"initial.{name}", self.lines.get("initial", 0)))
             q = self.attempt(lambda: self.quantity(f"initial.{name}", block[name], dim, f"initial {name}"))

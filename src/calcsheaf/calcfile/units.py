@@ -67,7 +67,23 @@ def parse_unit(text: str, where: Where = Where()) -> pint.Unit:
     if not ureg.Quantity(1, unit)._is_multiplicative:
         raise UnitError(f"offset unit '{text}' is not supported", file=where.file,
                         line=where.line, key=where.key, fix="use an absolute unit such as K")
+    traps = sorted((name, trap) for name in unit._units for trap in _TRAP_UNITS if name.endswith(trap))
+    if traps:
+        name, trap = traps[0]
+        raise UnitError(f"'{text}' reads as {name} ({_TRAP_UNITS[trap]}), "
+                        "which is almost never meant in a calc", file=where.file, line=where.line,
+                        key=where.key, fix="write newton metres as N*m or kN*m (with the *); "
+                                           "spell other units out")
     return unit
+
+
+# pint units whose short names catch everyday engineering abbreviations ("Nm", "kNm").
+_TRAP_UNITS = {
+    "number_meter": "a textile yarn count, not newton metres",
+    "number_english": "a textile yarn count",
+    "denier": "a textile linear density",
+    "tex": "a textile linear density",
+}
 
 
 def parse_quantity(text, where: Where = Where()) -> pint.Quantity:
@@ -139,6 +155,18 @@ def _power(exponent) -> str:
 @lru_cache(maxsize=None)
 def _named_dimension(name: str):
     return ureg.Unit(name).dimensionality
+
+
+_ANGLES = ("radian", "degree", "revolution", "turn", "arcminute", "arcsecond", "grade",
+           "revolutions_per_minute", "rpm")
+
+
+def si_unit_of(quantity: pint.Quantity) -> str:
+    """SI unit text of a quantity, keeping 'rad' for angles, angular rates and accelerations."""
+    text = si_unit_text(quantity.dimensionality)
+    if any(angle in name for name in quantity.units._units for angle in _ANGLES):
+        return {"1": "rad", "1/s": "rad/s", "1/s^2": "rad/s^2"}.get(text, text)
+    return text
 
 
 def describe(dim) -> str:

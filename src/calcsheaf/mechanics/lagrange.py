@@ -116,12 +116,12 @@ def derive(spec: CalcSpec) -> Derivation:
         G = sp.zeros(0, len(q))
         gamma = sp.zeros(0, 1)
 
-    steps, equations = _steps(names, q, qd, qdd, L, M, dL_dqd, dL_dq, dR_dqd, Q, rest, G, lambdas)
+    steps, equations = _steps(names, q, qd, qdd, L, M, dL_dqd, dL_dq, dR_dqd, Q, rest, G, lambdas, g)
     return Derivation(q=q, qd=qd, qdd=qdd, T=T, V=V, R=R, L=L, Q=Q, M=M, f=f, g=g, G=G,
                       gamma=gamma, lambdas=lambdas, steps=steps, equations=equations)
 
 
-def _steps(names, q, qd, qdd, L, M, dL_dqd, dL_dq, dR_dqd, Q, rest, G, lambdas):
+def _steps(names, q, qd, qdd, L, M, dL_dqd, dL_dq, dR_dqd, Q, rest, G, lambdas, g):
     steps = [Step("Lagrangian", "L = T - V", L)]
     equations = []
     for i, name in enumerate(names):
@@ -138,6 +138,12 @@ def _steps(names, q, qd, qdd, L, M, dL_dqd, dL_dq, dR_dqd, Q, rest, G, lambdas):
         lhs = ddt - dL_dq[i] + dR_dqd[i]
         equations.append(Step(f"Equation of motion for {name}", "0", lhs - Q[i] - constraint, name))
     steps.append(Step("Mass matrix (Hessian of T in the velocities)", "M", M))
+    for lam, equation in zip(lambdas, g):
+        # The force of a constraint enters each equation as λ ∂g/∂q_j (the Gᵀλ term):
+        # positive λ pushes the coordinates towards increasing g.
+        steps.append(Step(f"Constraint g = 0 whose force is {lam} (acting as {lam}·∂g/∂q on each "
+                          f"coordinate; positive {lam} pushes towards increasing g)",
+                          rf"g_{{{_latex_name(str(lam))}}}", equation))
     return tuple(steps), tuple(equations)
 
 

@@ -131,13 +131,19 @@ def _rows(items: list[dict] | None, keys: tuple[str, ...]) -> list[dict]:
     return [{key: str(item.get(key, "") or "") for key in keys} for item in items or []]
 
 
-def _revisions(report: CalcReport, revisions: list[dict] | None, build_date: str) -> list[dict]:
-    """Issued revisions, oldest first, plus the revision shown here when it is not one of them."""
+def _revisions(report: CalcReport, revisions: list[dict] | None, build_date: str,
+               signoff: dict | None = None) -> list[dict]:
+    """Issued revisions, oldest first, plus the revision shown here when it is not one of them
+    (its names and date from the current sign-offs)."""
     rows = _rows(revisions, REVISION_KEYS)
     if report.revision not in {row["rev"] for row in rows}:
+        signed = signoff or {}
         note = "Working revision, not issued" if report.status == "draft" else "This revision"
-        rows.append({"rev": report.revision, "date": build_date, "status": report.status,
-                     "description": note, "prepared_by": "", "checked_by": ""})
+        rows.append({"rev": report.revision,
+                     "date": signed.get("checked_date") or signed.get("prepared_date") or build_date,
+                     "status": report.status, "description": note,
+                     "prepared_by": signed.get("prepared_by", ""),
+                     "checked_by": signed.get("checked_by", "")})
     return rows
 
 
@@ -157,7 +163,7 @@ def _context(report: CalcReport, project: ProjectInfo, collect: _Collector, *,
         "calc": report,
         "project": project,
         "sections": SECTIONS,
-        "revisions": _revisions(report, revisions, build_date),
+        "revisions": _revisions(report, revisions, build_date, signoff),
         "signoff": _rows([signoff or {}], SIGNOFF_KEYS)[0],
         "build_date": build_date,
         "draft": report.status == "draft",
