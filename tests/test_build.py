@@ -216,10 +216,21 @@ def test_build_never_writes_into_issued(tmp_path):
     project = make_project(tmp_path / "p", {"a.toml": tiny("C-1")})
     frozen = project / "issued" / "C-1" / "A"
     frozen.mkdir(parents=True)
-    (frozen / "MANIFEST.json").write_text("{}\n")
+    (frozen / "notes.txt").write_text("kept as it is\n")
     before = snapshot(project / "issued")
     assert main(["build", str(project)]) == 0
     assert snapshot(project / "issued") == before
+
+
+def test_a_damaged_issued_manifest_fails_its_calc_with_a_clear_message(tmp_path, capsys):
+    project = make_project(tmp_path / "p", {"a.toml": tiny("C-1")})
+    frozen = project / "issued" / "C-1" / "A"
+    frozen.mkdir(parents=True)
+    (frozen / "MANIFEST.json").write_text("{}\n")
+    assert main(["build", str(project)]) == 1
+    err = capsys.readouterr().err
+    assert "MANIFEST.json: is not a calcsheaf manifest" in err and "Fix: restore" in err
+    assert "Traceback" not in err
 
 
 def test_preview_serves_the_site_on_loopback_and_rebuilds_on_change(tmp_path):

@@ -53,8 +53,25 @@ def _manifests(project_root: Path, calc_number: str) -> dict[str, tuple[bytes, d
         path = folder / MANIFEST
         if folder.is_dir() and not folder.name.startswith(".") and path.is_file():
             data = path.read_bytes()
-            found[folder.name] = (data, json.loads(data))
+            found[folder.name] = (data, _parsed_manifest(path, data))
     return found
+
+
+MANIFEST_KEYS = ("calc", "revision", "content_hash", "calc_file", "files")
+
+
+def _parsed_manifest(path: Path, data: bytes) -> dict:
+    """A manifest's fields; ArchiveError when the file is not one (damaged or hand-made)."""
+    try:
+        manifest = json.loads(data)
+    except ValueError:
+        manifest = None
+    missing = [k for k in MANIFEST_KEYS if not isinstance(manifest, dict) or k not in manifest]
+    if missing:
+        raise ArchiveError(f"is not a calcsheaf manifest (missing {', '.join(missing)})", file=path,
+                           fix="restore this issued revision from the archive copy; "
+                               "`calcsheaf verify` on it shows what changed")
+    return manifest
 
 
 def ordered_revisions(project_root: Path, calc_number: str) -> list[tuple[str, bytes, dict]]:
