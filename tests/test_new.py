@@ -25,7 +25,7 @@ def scaffold(tmp_path_factory) -> Path:
 
 def test_scaffold_writes_the_project_files(scaffold):
     files = sorted(str(p.relative_to(scaffold)) for p in scaffold.rglob("*") if p.is_file())
-    assert files == ["README.md", "calcs/c001-mounted-rack.toml", "project.toml"]
+    assert files == [".gitignore", "README.md", "calcs/c001-mounted-rack.toml", "project.toml"]
     project = load_project(scaffold)
     assert (project.number, project.name) == ("P-0001", "rack-project")
     assert "calcsheaf check" in (scaffold / "README.md").read_text()

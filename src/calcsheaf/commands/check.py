@@ -31,7 +31,9 @@ def check(project_root: Path, out=None, err=None) -> int:
               f"  max D/C {dc}  energy residual {energy}", file=out)
         for c in report.checks:
             if not c.passed:
-                print(_indent(f"{c.kind}: {c.name}: {c.detail}"), file=err)
+                print(_indent(f"{outcome.path.name}: {c.kind}: {c.name}: {c.detail}"), file=err)
+            elif "outside the case's validity limits" in c.detail:
+                print(_indent(f"{outcome.path.name}: note: {c.name}: {c.detail}"), file=out)
     total = len(outcomes)
     print(f"{total - failed} of {total} calc(s) passed ({project.number} {project.name})", file=out)
     return 1 if failed else 0

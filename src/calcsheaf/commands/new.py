@@ -16,8 +16,9 @@ from ..errors import InputError
 TEMPLATED = ("project.toml", "README.md")
 
 
-def new(path: Path, out=sys.stdout) -> int:
+def new(path: Path, out=None) -> int:
     """Create the project at `path`; 0 on success, InputError when `path` is taken."""
+    out = out or sys.stdout
     root = Path(path)
     _refuse_taken(root)
     files = scaffold_files(root.resolve().name or "calcsheaf project", str(path))
@@ -40,8 +41,12 @@ def scaffold_files(name: str, folder: str) -> dict[str, str]:
         if rel in TEMPLATED:
             text = (text.replace("{{name}}", toml_string(name)).replace("{{title}}", name)
                     .replace("{{folder}}", folder))
-        out[rel] = text
+        out[DOTFILES.get(rel, rel)] = text
     return out
+
+
+# Scaffold files stored without their leading dot (package data skips dotfiles).
+DOTFILES = {"gitignore.txt": ".gitignore"}
 
 
 def toml_string(text: str) -> str:

@@ -77,6 +77,8 @@ def run_crosschecks(ctx: QueryContext) -> tuple[list[CrosscheckRow], list[Check]
                                       computed=computed, relative_error=error, tolerance=tolerance,
                                       tolerance_reason=reason, passed=passed, source=case.source,
                                       validity=limits))
+            broken = [text for text, holds in limits if not holds]
+            note = f"; outside the case's validity limits: {'; '.join(broken)}" if broken else ""
             checks.append(Check("crosscheck", f"{case.key}: {quantity}", passed,
-                                f"relative error {error:.2e} (tolerance {tolerance:g})"))
+                                f"relative error {error:.2e} (tolerance {tolerance:g}){note}"))
     return rows, checks
