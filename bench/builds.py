@@ -13,6 +13,11 @@ benchmark run, warmed first by `first_use` on a one-calc project and timed
 apart: an engineer pays it once per installed version, not per project.
 When `build --jobs` is not accepted yet, the builds run without it and the
 --jobs comparison is reported as pending.
+
+The builds run a frozen copy of the committed code (`git archive HEAD` on
+PYTHONPATH): the cache is keyed by the tool's code, so edits made to the
+working tree during a benchmark run would otherwise turn a no-op rebuild
+into a full one.
 """
 
 from __future__ import annotations
@@ -28,6 +33,7 @@ from pathlib import Path
 import chain
 import springs
 
+REPO = Path(__file__).resolve().parent.parent
 PROJECT_TOML = '[project]\nnumber = "P-BENCH"\nname = "Benchmark project (generated, invented data)"\n'
 EDITED_CALC = 0
 
@@ -62,25 +68,41 @@ def edit_one(folder: Path) -> None:
     path.write_text(edited, encoding="utf-8")
 
 
-def calcsheaf_command() -> str:
-    from sys import executable
-    return str(Path(executable).with_name("calcsheaf"))
+def freeze_code(folder: Path) -> Path:
+    """Extract the committed tree (HEAD) into `folder`; returns its src/ folder."""
+    folder.mkdir(parents=True)
+    archive = subprocess.run(["git", "-C", str(REPO), "archive", "HEAD"], capture_output=True,
+                             check=True).stdout
+    subprocess.run(["tar", "-x", "-C", str(folder)], input=archive, check=True)
+    return folder / "src"
 
 
-def jobs_supported() -> bool:
+def calcsheaf_command() -> list[str]:
+    return [sys.executable, "-m", "calcsheaf"]
+
+
+def code_in_use(env: dict) -> str:
+    """The folder the build subprocesses import calcsheaf from."""
+    done = subprocess.run([sys.executable, "-c", "import calcsheaf; print(calcsheaf.__file__)"],
+                          capture_output=True, text=True, env=env, check=True)
+    return str(Path(done.stdout.strip()).parent)
+
+
+def jobs_supported(env: dict) -> bool:
     """True when `calcsheaf build --help` names a --jobs option."""
-    done = subprocess.run([calcsheaf_command(), "build", "--help"], capture_output=True, text=True)
+    done = subprocess.run([*calcsheaf_command(), "build", "--help"], capture_output=True,
+                          text=True, env=env)
     return "--jobs" in done.stdout
 
 
 def _build(project: Path, jobs: int | None, env: dict) -> float:
-    command = [calcsheaf_command(), "build", str(project)]
+    command = [*calcsheaf_command(), "build", str(project)]
     if jobs is not None:
         command += ["--jobs", str(jobs)]
     started = time.perf_counter()
     done = subprocess.run(command, capture_output=True, text=True, env=env)
     seconds = time.perf_counter() - started
-    print(f"  {' '.join(command[1:])}: {seconds:.1f} s (exit {done.returncode})", file=sys.stderr,
+    print(f"  {' '.join(command[2:])}: {seconds:.1f} s (exit {done.returncode})", file=sys.stderr,
           flush=True)
     if done.returncode not in (0, 1) or not (project / "_site").is_dir():
         raise RuntimeError(f"{' '.join(command)} failed ({done.returncode}):\n{done.stderr[-2000:]}")
@@ -89,21 +111,22 @@ def _build(project: Path, jobs: int | None, env: dict) -> float:
     return seconds
 
 
-def environment(tool_cache: Path) -> dict:
-    return dict(os.environ, XDG_CACHE_HOME=str(tool_cache), SOURCE_DATE_EPOCH="1767225600")
+def environment(tool_cache: Path, code: Path) -> dict:
+    """Build environment: the tool cache folder, the frozen code first on the path, a fixed date."""
+    return dict(os.environ, XDG_CACHE_HOME=str(tool_cache), PYTHONPATH=str(code),
+                SOURCE_DATE_EPOCH="1767225600")
 
 
-def first_use(tool_cache: Path, jobs: int | None) -> float:
+def first_use(jobs: int | None, env: dict) -> float:
     """Seconds of a one-calc build with an empty tool cache (fills it)."""
     with tempfile.TemporaryDirectory() as folder:
-        return _build(write_project(Path(folder) / "project", 1), jobs, environment(tool_cache))
+        return _build(write_project(Path(folder) / "project", 1), jobs, env)
 
 
-def measure(count: int, jobs: int | None, tool_cache: Path) -> dict:
+def measure(count: int, jobs: int | None, env: dict) -> dict:
     """Seconds of the cold, no-op and one-edit builds of a fresh `count`-calc project."""
     with tempfile.TemporaryDirectory() as folder:
         project = write_project(Path(folder) / "project", count)
-        env = environment(tool_cache)
         cold = _build(project, jobs, env)
         noop = _build(project, jobs, env)
         edit_one(project)

@@ -126,24 +126,26 @@ def pdf_rows(plan: Plan, notes: list[str]) -> list[Row]:
 
 
 def build_rows(plan: Plan, notes: list[str]) -> list[Row]:
-    count = plan.project_calcs
-    with tempfile.TemporaryDirectory() as tool_cache:
-        return _build_rows(count, Path(tool_cache), notes)
+    with tempfile.TemporaryDirectory() as folder:
+        code = builds.freeze_code(Path(folder) / "code")
+        env = builds.environment(Path(folder) / "tool-cache", code)
+        notes.append(f"build: ran the committed code (HEAD) frozen in {builds.code_in_use(env)}.")
+        return _build_rows(plan.project_calcs, env, notes)
 
 
-def _build_rows(count: int, tool_cache: Path, notes: list[str]) -> list[Row]:
-    supported = builds.jobs_supported()
-    first = builds.first_use(tool_cache, 1 if supported else None)
+def _build_rows(count: int, env: dict, notes: list[str]) -> list[Row]:
+    supported = builds.jobs_supported(env)
+    first = builds.first_use(1 if supported else None, env)
     rows = [Row("first build after install (1 calc, tool cache made)", Time(first), None)]
     notes.append("build: cold = fresh project, no _site and no project cache; the tool's "
                  "per-version cache (self-test report) was made by the first build above.")
     if not supported:
-        r = builds.measure(count, None, tool_cache)
+        r = builds.measure(count, None, env)
         notes.append("build: `calcsheaf build --jobs` is not accepted yet; builds ran without it.")
         return rows + _rebuild_rows(count, r, "") + [
             Row(f"cold build {count} calcs, --jobs 2 vs 1", None, None, note="pending (no --jobs)",
                 target_text="≥ 1.6× faster")]
-    one, two = builds.measure(count, 1, tool_cache), builds.measure(count, 2, tool_cache)
+    one, two = builds.measure(count, 1, env), builds.measure(count, 2, env)
     rows += _rebuild_rows(count, one, " --jobs 1") + _rebuild_rows(count, two, " --jobs 2")
     rows.append(Row(f"cold build {count} calcs, --jobs 2 vs 1", Time(two["cold_s"]),
                     Time(one["cold_s"]), "--jobs 1", max_ratio=1 / 1.6, target_text="≥ 1.6× faster"))
