@@ -198,7 +198,7 @@ def markdown(rows: list[Row], notes: list[str], header: str, mode: str, seconds:
 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--quick", action="store_true", help="reduced set, about two minutes")
+    parser.add_argument("--quick", action="store_true", help="reduced set, about three minutes")
     parser.add_argument("--only", default=",".join(SECTIONS),
                         help=f"comma-separated sections out of {','.join(SECTIONS)}")
     parser.add_argument("--markdown", type=Path, help="also write the results as Markdown here")
