@@ -264,7 +264,7 @@ def test_terminated_build_leaves_no_worker_behind(tmp_path):
                             stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     time.sleep(4.0)
     proc.terminate()
-    _, err = proc.communicate(timeout=60)
+    _, err = proc.communicate(timeout=180)
     assert proc.returncode != 0 and "Traceback" not in err
     time.sleep(0.5)
     survivors = subprocess.run(["pgrep", "-f", str(project)], capture_output=True, text=True).stdout

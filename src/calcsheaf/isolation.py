@@ -11,6 +11,7 @@ import multiprocessing as mp
 import os
 import pickle
 import resource
+import signal
 import time
 import warnings
 from pathlib import Path
@@ -46,6 +47,7 @@ class _Stage:
 def _child(fn: Callable, path: Path, conn) -> None:
     global _stage_channel
     _stage_channel = conn
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)   # a worker stops at once when told to
     try:
         resource.setrlimit(resource.RLIMIT_AS, (MEMORY_LIMIT_BYTES, MEMORY_LIMIT_BYTES))
     except (ValueError, OSError):
@@ -95,11 +97,12 @@ def run_isolated(fn: Callable, paths: list[Path], jobs: int, on_failure: Callabl
     running: dict[int, tuple] = {}
     try:
         _schedule(ctx, fn, pending, running, results, jobs, on_failure, progress)
-    finally:   # interrupted or terminated: leave no worker behind
+    finally:   # interrupted or terminated: leave no worker behind, even one still starting
         for proc, receive, _, _ in running.values():
+            receive.close()
+        for proc in mp.active_children():
             proc.kill()
             proc.join()
-            receive.close()
     return [results[i] for i in range(len(paths))]
 
 
