@@ -16,18 +16,16 @@ import numpy as np
 from . import model as m
 from .calcfile.loader import load_calc
 from .calcfile.spec import CalcSpec
-from .isolation import stage
-from .software import versions
 from .errors import AnalysisError, CalcsheafError, DerivationError
+from .isolation import stage
 from .mechanics import frequency, linearise as lin, simulate
-from .mechanics.codegen import NumericSystem, numeric, series_function
+from .mechanics.codegen import NumericSystem, numeric
 from .mechanics.energy import audit
 from .mechanics.equilibrium import find_equilibrium
-from .mechanics.lagrange import Derivation, derive
+from .mechanics.lagrange import derive
+from .software import versions
 from .verification.checks import judge_criteria, run_crosschecks
 from .verification.queries import History, QueryContext
-
-HAZARD_FLAGS = ("suspended_load", "people_under_load", "rotating_machinery")
 
 
 def analyse_calc_file(path: Path, project_toml: Path | None = None) -> m.CalcReport:

@@ -17,11 +17,11 @@ import sympy as sp
 from ..errors import CalcsheafError, InputError, ProblemList
 from ..model import Assumption, Reference
 from . import spec as S
-from .expressions import (RESERVED_NAMES, TIME, Scope, Where, parse_expression, velocity)
+from .expressions import RESERVED_NAMES, Scope, Where, parse_expression, velocity
 from .text_links import local_targets
 from .toml_source import read_toml, value_column
-from .units import (si_unit_of, DIMENSIONLESS, DimensionChecker, describe, dimension_of, parse_quantity,
-                    parse_unit, si_factor, si_unit_text, to_si, ureg)
+from .units import (DIMENSIONLESS, DimensionChecker, describe, parse_quantity, parse_unit,
+                    si_factor, si_unit_of, si_unit_text, to_si, ureg)
 
 NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
 HAZARDS = ("suspended_load", "people_under_load", "rotating_machinery")

@@ -129,9 +129,9 @@ def _steps(names, q, qd, qdd, L, M, dL_dqd, dL_dq, dR_dqd, Q, rest, G, lambdas, 
         ddt = sum((M[i, k] * qdd[k] for k in range(len(q))), sp.Integer(0)) + rest[i]
         steps += [
             Step(f"Momentum conjugate to {name}", rf"\frac{{\partial L}}{{\partial \dot{{{s}}}}}", dL_dqd[i], name),
-            Step(f"Its time derivative", rf"\frac{{d}}{{dt}}\frac{{\partial L}}{{\partial \dot{{{s}}}}}", ddt, name),
+            Step("Its time derivative", rf"\frac{{d}}{{dt}}\frac{{\partial L}}{{\partial \dot{{{s}}}}}", ddt, name),
             Step(f"Partial of L with respect to {name}", rf"\frac{{\partial L}}{{\partial {s}}}", dL_dq[i], name),
-            Step(f"Dissipation term", rf"\frac{{\partial R}}{{\partial \dot{{{s}}}}}", dR_dqd[i], name),
+            Step("Dissipation term", rf"\frac{{\partial R}}{{\partial \dot{{{s}}}}}", dR_dqd[i], name),
             Step(f"Generalized force on {name}", rf"Q_{{{s}}}", Q[i], name),
         ]
         constraint = sum((G[r, i] * lam for r, lam in enumerate(lambdas)), sp.Integer(0))
