@@ -7,6 +7,7 @@ STAMP := $(VENV)/.installed
 .PHONY: demo test install clean bench
 
 $(STAMP): pyproject.toml
+	bash .ci/system-packages runtime
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/pip install -q --upgrade pip
 	$(BIN)/pip install -q -e '.[test]'
@@ -19,6 +20,7 @@ demo: $(STAMP)
 	$(BIN)/python -m calcsheaf.demo projects
 
 test: $(STAMP)
+	bash .ci/system-packages test
 	$(BIN)/python -m pytest
 
 bench: $(STAMP)
