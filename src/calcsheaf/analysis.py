@@ -234,7 +234,7 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
                                         agreement_tolerance=th.agreement_tolerance,
                                         constraint_drift=drift)
     report.energy = audit(derivation, ctx.params, t, Q, QD, QDD, LAM, Y[2 * n], Y[2 * n + 1],
-                          spec.analysis.energy_tolerance)
+                          spec.analysis.energy_tolerance, state=first.dense)
     checks.append(m.Check("energy", "energy audit", report.energy.passed,
                           f"largest relative residual {report.energy.max_relative_residual:.2e} "
                           f"(tolerance {report.energy.tolerance:g})"))
