@@ -25,6 +25,7 @@ from .mechanics.equilibrium import find_equilibrium
 from .mechanics.lagrange import derive
 from .software import versions
 from .verification.checks import judge_criteria, run_crosschecks
+from .verification.lagrange_check import equations_check
 from .verification.queries import History, QueryContext
 
 
@@ -56,6 +57,7 @@ def analyse(spec: CalcSpec) -> m.CalcReport:
     stage("solve")
     checks = [m.Check("units", "dimensional consistency", True,
                       "every energy, force, output and query expression checked with its units")]
+    checks.append(equations_check(spec, system))
     ctx = QueryContext(spec=spec, derivation=derivation, params=params, system=system)
 
     _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks)
