@@ -14,6 +14,7 @@ WORK=${MUTATION_DIR:-/tmp/calcsheaf-mutation}
 JOBS=${JOBS:-2}
 # The tests that kill mutants of these functions without long time histories.
 TESTS=(tests/test_lagrange_check.py tests/test_energy_jumps.py tests/test_derivation.py
+       tests/test_energy_function.py
 )
 # Functions whose mutants are run: derivation (M, f, G, gamma, Q by virtual work, the energy
 # function and powers) and the energy audit with its switch jumps.  Notes (text) are left out.

@@ -282,3 +282,13 @@ def test_states_where_an_expression_is_undefined_are_skipped(tmp_path):
     spec = load_calc(write_calc(tmp_path, text, "sqrt.toml"))
     result = check_equations(spec, NumericSystem(derive(spec), spec.parameter_values))
     assert result.states == 3 and result.passed, result.worst
+
+
+def test_unconstrained_derivation_has_empty_constraint_terms(tmp_path):
+    # No constraint: G is 0×n and γ is 0×1 (Gᵀλ and G q̈ = γ vanish), in the derivation and
+    # in the compiled function the integrators call.
+    spec = spec_of(tmp_path, "cart")
+    d = derive(spec)
+    assert d.G.shape == (0, 2) and d.gamma.shape == (0, 1) and d.g.shape == (0, 0)
+    M, f, G, gamma = NumericSystem(d, spec.parameter_values).matrices(0.3, [0.01, 0.2], [0.1, -0.4])
+    assert M.shape == (2, 2) and f.shape == (2,) and G.shape == (0, 2) and gamma.shape == (0,)
