@@ -138,8 +138,17 @@ class QueryContext:
             raise self._fail(f"mode {index} does not exist: the calc has {len(self.modes)} mode(s)",
                              f"ask for a mode between 1 and {len(self.modes)}")
         mode = self.modes[index - 1]
-        return {"natural_frequency": mode.natural_frequency_hz, "damping_ratio": mode.damping_ratio,
-                "damped_frequency": mode.damped_frequency_hz}[name]
+        value = {"natural_frequency": mode.natural_frequency_hz, "damping_ratio": mode.damping_ratio,
+                 "damped_frequency": mode.damped_frequency_hz}[name]
+        if np.isfinite(value):
+            return value
+        if mode.kind == "unstable":
+            raise self._fail(f"{name}({index}) is not defined: mode {index} is unstable and grows "
+                             f"without oscillating (growth rate {mode.growth_rate_per_s:.4g} 1/s, "
+                             f"doubling time {mode.doubling_time_s:.4g} s)",
+                             "stabilise the design, or query another mode")
+        raise self._fail(f"{name}({index}) is not defined for mode {index} ({mode.kind})",
+                         "query another mode")
 
     # ---- oscillation measures --------------------------------------------------
     def _oscillation(self, name: str, coordinate: str, history: History) -> float:
