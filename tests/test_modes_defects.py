@@ -526,3 +526,39 @@ def test_gyroscopic_shapes_keep_the_out_of_phase_component(tmp_path):
     assert row["shape_magnitude"]["y"] == pytest.approx(ratio, rel=1e-8)
     html = render_calc(report, project(THEME_ONLY_ROOT), build_date="2024-05-01").html
     assert "∠" in html and "magnitude ∠ phase" in html
+
+
+def test_steady_drive_without_a_relative_equilibrium_is_refused(tmp_path):
+    """A belt driven at constant speed drags a free block through a damper against a constant
+    force: no position of the block balances c v + F (by hand), so rather than drop the belt
+    speed the equilibrium is refused with the prescribed velocity named."""
+    report = report_of(tmp_path, calc("""
+    [parameters]
+    m = "2 kg"
+    mb = "1 kg"
+    c = "50 N*s/m"
+    v = "0.5 m/s"
+    F = "10 N"
+    [coordinates]
+    x = { unit = "m" }
+    s = { unit = "m" }
+    [energy]
+    kinetic = "m/2*dot(x)**2 + mb/2*dot(s)**2"
+    dissipation = "c/2*(dot(x) - dot(s))**2"
+    [generalized_forces]
+    x = "F"
+    [[constraint]]
+    name = "F_belt"
+    equation = "s - v*t"
+    unit = "N"
+    [initial]
+    x = "0 m"
+    s = "0 m"
+    "dot(x)" = "0 m/s"
+    "dot(s)" = "0.5 m/s"
+    """))
+    failed = [c for c in report.checks if not c.passed]
+    assert [c.kind for c in failed] == ["equilibrium"]
+    assert "no steady motion (relative equilibrium) was found" in failed[0].detail
+    assert "dot(s) = 0.5 (SI)" in failed[0].detail and "equilibrium = false" in failed[0].detail
+    assert report.equilibrium is None

@@ -69,23 +69,59 @@ def find_equilibrium(system: NumericSystem, q0: np.ndarray) -> EquilibriumPoint:
     try:
         q, lam, err, scale = _solve(_full_residual(system, velocity), q0, system.m)
     except AnalysisError:
+        if _steady_drive(system, q0):
+            raise _no_steady_motion(system, q0) from None
         q = None
     if q is not None:
         qd = velocity(q)
         if _persists(system, q, qd, scale):
-            moving = np.any(np.abs(qd) > 0)
+            moving = bool(np.any(np.abs(qd) > 0))
             return EquilibriumPoint(
                 q=q, qd=qd, lambdas=lam, residual=err, kind=STEADY if moving else STATIC,
-                note=(f"steady motion: the velocities the constraints prescribe are kept; "
-                      f"positions at t = {T0:g} s") if moving else
+                note=(f"steady motion: the velocities the constraints prescribe are kept "
+                      f"({_listed(system, qd)}); positions at t = {T0:g} s") if moving else
                      "every velocity zero; the time-dependent terms are constant at rest")
     q, lam, err, _ = _solve(_frozen_residual(system), q0, system.m)
+    dropped = prescribed_velocity(system, q)
+    dropped_text = (f" ({_listed(system, dropped)} at t = {T0:g} s taken as zero)"
+                    if np.any(np.abs(dropped) > 0) else "")
     return EquilibriumPoint(
         q=q, qd=np.zeros(system.n), lambdas=lam, residual=err, kind=FROZEN,
         note=(f"the calc is driven and has no steady motion, so the static equilibrium is "
               f"taken with the time frozen at t = {T0:g} s and every velocity zero, prescribed "
-              f"ones included: no inertia or damper force; the potential energy and the applied "
-              f"forces as they stand at t = {T0:g} s"))
+              f"ones included{dropped_text}: no inertia or damper force; the potential energy "
+              f"and the applied forces as they stand at t = {T0:g} s"))
+
+
+def _listed(system: NumericSystem, qd: np.ndarray) -> str:
+    """'dot(phi) = 8 (SI)' for each non-zero velocity."""
+    return ", ".join(f"dot({q}) = {v:.6g}" for q, v in zip(system.derivation.q, qd) if v != 0) + " (SI)"
+
+
+def _steady_drive(system: NumericSystem, q0: np.ndarray) -> bool:
+    """True when driven constraints prescribe non-zero rates ∂g/∂t that stay constant in time
+    (e.g. φ − Ω t), so a steady motion is what the calc asks for."""
+    if not system.m:
+        return False
+    zero = np.zeros(system.n)
+    with np.errstate(all="ignore"):
+        try:
+            rates = [system.constraint_rate(T0 + s, q0, zero) for s in (0.0, *PERSISTENCE_TIMES)]
+        except (ValueError, ArithmeticError):
+            return False
+    first = rates[0]
+    size = float(np.max(np.abs(first)))
+    return size > 0 and all(float(np.max(np.abs(r - first))) <= 1e-9 * size for r in rates)
+
+
+def _no_steady_motion(system: NumericSystem, q0: np.ndarray) -> AnalysisError:
+    return AnalysisError(
+        f"no steady motion (relative equilibrium) was found from the initial state with the "
+        f"velocities the driven constraints prescribe ({_listed(system, prescribed_velocity(system, q0))}); "
+        "the other coordinates find no rest relative to the driven motion",
+        key="analysis.equilibrium",
+        fix="start [initial] nearer the relative equilibrium, or set [analysis] equilibrium = false "
+            "if the system has none (e.g. a collar running out along a turning arm)")
 
 
 def _depends_on_time(d) -> bool:
