@@ -126,6 +126,10 @@ def _check_initial_constraints(spec, system, q0, qd0) -> None:
 
 
 def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) -> None:
+    """Equilibrium (static, steady motion or time-frozen), linearisation, stability and modes.
+
+    An unstable equilibrium fails the calc unless [analysis] expect_unstable = true
+    (then a stable one fails it)."""
     if not spec.analysis.equilibrium:
         return
     try:
@@ -136,20 +140,28 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         return
     names = spec.coordinate_names
     try:
-        linear = lin.linearise(derivation, ctx.params, point.q, point.lambdas)
-        stable, verdict = lin.stability(linear)
+        linear = lin.linearise(derivation, ctx.params, point.q, point.lambdas, point.qd, point.time)
+        stability = lin.stability(linear)
         modes = lin.modes(linear, names) if spec.analysis.modes else ()
     except (AnalysisError, np.linalg.LinAlgError) as exc:
         problem = getattr(exc, "problem", f"the linearised system cannot be solved ({exc})")
-        linear, stable, verdict, modes = None, False, f"stability not determined: {problem}", ()
+        linear, modes = None, ()
+        stability = lin.Stability(False, f"stability not determined: {problem}", float("nan"))
+    expect = spec.analysis.expect_unstable
     report.equilibrium = m.Equilibrium(
         values={c.name: float(v) / c.factor for c, v in zip(spec.coordinates, point.q)},
-        units={c.name: c.unit for c in spec.coordinates}, stable=stable, verdict=verdict,
-        residual=point.residual,
-        multipliers={c.name: float(v) / c.factor for c, v in zip(spec.constraints, point.lambdas)})
+        units={c.name: c.unit for c in spec.coordinates}, stable=stability.stable,
+        verdict=stability.verdict, residual=point.residual,
+        multipliers={c.name: float(v) / c.factor for c, v in zip(spec.constraints, point.lambdas)},
+        kind=point.kind, time_s=point.time, note=point.note,
+        velocities={c.name: float(v) / c.factor for c, v in zip(spec.coordinates, point.qd) if v != 0},
+        growth_rate_per_s=stability.growth_rate, doubling_time_s=stability.doubling_time,
+        expected_unstable=expect)
     ctx.equilibrium = {n: float(v) for n, v in zip(names, point.q)}
-    checks.append(m.Check("equilibrium", "static equilibrium", True,
-                          f"found, residual {point.residual:.2e}; {verdict}"))
+    checks.append(m.Check("equilibrium", "static equilibrium" if point.kind != "steady motion"
+                          else "steady motion (relative equilibrium)", True,
+                          f"found ({point.kind}, t = {point.time:g} s), residual {point.residual:.2e}; "
+                          f"{point.note}; {stability.verdict}"))
     if linear is None:
         if spec.analysis.modes:
             error = AnalysisError(problem, file=spec.path, key="analysis.modes",
@@ -157,9 +169,29 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
                                   fix="set [analysis] modes = false, or smooth the offending term")
             checks.append(m.Check("modes", "linearisation and modes", False, error.message))
         return
+    checks.append(_stability_check(spec, stability))
     ctx.linear, ctx.linear_point = linear, point.q
     report.linearisation = linear.full
     report.modes = ctx.modes = modes
+
+
+def _stability_check(spec, stability) -> m.Check:
+    """Passes when the equilibrium is as stable as the calc expects ([analysis] expect_unstable)."""
+    expect = spec.analysis.expect_unstable
+    where = f"{spec.path}:{spec.line('analysis') or spec.line('energy')}: analysis.expect_unstable"
+    if stability.stable and not expect:
+        return m.Check("stability", "stability of the equilibrium", True, stability.verdict)
+    if not stability.stable and expect:
+        return m.Check("stability", "stability of the equilibrium", True,
+                       f"{stability.verdict} (expected: [analysis] expect_unstable = true)")
+    if expect:
+        return m.Check("stability", "stability of the equilibrium", False,
+                       f"{where}: the calc expects an unstable equilibrium but found {stability.verdict}. "
+                       "Fix: check the model, or remove expect_unstable from [analysis]")
+    return m.Check("stability", "stability of the equilibrium", False,
+                   f"{where}: {stability.verdict}. Fix: change the design so that it is stable, or, "
+                   "when the calc is about an unstable state (e.g. before a control acts), set "
+                   "[analysis] expect_unstable = true")
 
 
 def _frequency_response(spec, ctx: QueryContext, report) -> None:

@@ -93,12 +93,20 @@ class Check:
 
 @dataclass(frozen=True)
 class Equilibrium:
-    values: dict[str, float]          # coordinate -> value in its declared unit
+    values: dict[str, float]          # coordinate -> value in its declared unit (at `time_s`)
     units: dict[str, str]             # coordinate -> declared unit (e.g. "mm", "deg")
     stable: bool
     verdict: str                      # e.g. "stable: stiffness positive definite"
     residual: float                   # largest |generalised force| left at the solution
     multipliers: dict[str, float] = field(default_factory=dict)   # constraint forces at rest, display unit
+    kind: str = "static"              # static, steady motion, static, time frozen
+    time_s: float = 0.0               # the time loads and constraints are taken at, s
+    note: str = ""                    # how the state was defined (velocities, time)
+    velocities: dict[str, float] = field(default_factory=dict)    # prescribed velocities of a steady
+                                      # motion, coordinate -> value in its declared unit per second
+    growth_rate_per_s: float = float("nan")   # largest growth rate of an unstable equilibrium, 1/s
+    doubling_time_s: float = float("nan")     # ln 2 / growth rate, s
+    expected_unstable: bool = False   # [analysis] expect_unstable
 
 
 @dataclass(frozen=True)
@@ -109,7 +117,14 @@ class Mode:
     natural_frequency_rad_s: float
     damping_ratio: float
     damped_frequency_hz: float
-    shape: dict[str, float]           # largest component normalised to 1
+    shape: dict[str, float]           # largest component normalised to 1 (real part of a complex shape)
+    # All of f_n = |λ|/2π, ζ = −Re λ/|λ| and f_d = |Im λ|/2π come from the same root λ;
+    # f_n and ζ are NaN for a real growing root (no frequency), ζ is NaN for a rigid-body mode.
+    roots: tuple[tuple[float, float], ...] = ()     # the mode's two roots (Re, Im), 1/s
+    growth_rate_per_s: float = float("nan")         # Re λ > 0 of an unstable mode, 1/s
+    doubling_time_s: float = float("nan")           # ln 2 / growth rate, s
+    shape_magnitude: dict[str, float] | None = None  # complex shapes only: |φ_j| (largest 1)
+    shape_phase_deg: dict[str, float] | None = None  # complex shapes only: arg φ_j, degrees
 
 
 @dataclass(frozen=True)
@@ -120,6 +135,8 @@ class Linearisation:
     G: np.ndarray                     # skew (gyroscopic) part of the velocity matrix
     K: np.ndarray                     # symmetric stiffness
     N: np.ndarray                     # skew (circulatory) part of the stiffness
+    velocities: tuple[float, ...] = ()   # q̇ about which it is taken (SI; non-zero in steady motion)
+    time: float = 0.0                 # s, the time it is taken at
 
 
 @dataclass(frozen=True)

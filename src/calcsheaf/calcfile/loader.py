@@ -41,7 +41,7 @@ TABLE_KEYS = {
     "energy": ({"kinetic"}, {"potential", "dissipation"}),
     "point_force": ({"position", "force"}, {"label"}),
     "constraint": ({"name", "equation"}, {"unit", "label"}),
-    "analysis": (set(), {"equilibrium", "modes", "energy_tolerance"}),
+    "analysis": (set(), {"equilibrium", "modes", "energy_tolerance", "expect_unstable"}),
     "time_history": ({"duration"}, {"points", "rtol", "atol", "second_method",
                                     "agreement_tolerance"}),
     "frequency_response": ({"force", "from", "to"}, {"points", "spacing"}),
@@ -567,7 +567,8 @@ class _CalcLoader:
         return S.AnalysisSpec(
             equilibrium=self.boolean("analysis.equilibrium", block.get("equilibrium"), True),
             modes=self.boolean("analysis.modes", block.get("modes"), True),
-            energy_tolerance=self.number("analysis.energy_tolerance", block.get("energy_tolerance"), 1e-6))
+            energy_tolerance=self.number("analysis.energy_tolerance", block.get("energy_tolerance"), 1e-6),
+            expect_unstable=self.boolean("analysis.expect_unstable", block.get("expect_unstable"), False))
 
     def time_history(self) -> S.TimeHistorySpec | None:
         if "time_history" not in self.data:

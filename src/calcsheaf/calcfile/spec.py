@@ -106,6 +106,7 @@ class AnalysisSpec:
     equilibrium: bool = True
     modes: bool = True
     energy_tolerance: float = 1e-6
+    expect_unstable: bool = False     # an unstable equilibrium is reported but does not fail the calc
 
 
 @dataclass(frozen=True)

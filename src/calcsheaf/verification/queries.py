@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import sympy as sp
 from scipy import optimize
+from scipy.linalg import eigh as scipy_eigh
 
 from ..calcfile.expressions import query_name, symbol
 from ..errors import AnalysisError
@@ -71,6 +72,8 @@ class QueryContext:
     def _query(self, name: str, args) -> float:
         if name in ("natural_frequency", "damping_ratio", "damped_frequency"):
             return self._mode(name, int(args[0]))
+        if name == "undamped_frequency":
+            return self._undamped(int(args[0]))
         if name == "equilibrium":
             if self.equilibrium is None:
                 raise self._fail("equilibrium() needs the static equilibrium",
@@ -138,8 +141,34 @@ class QueryContext:
             raise self._fail(f"mode {index} does not exist: the calc has {len(self.modes)} mode(s)",
                              f"ask for a mode between 1 and {len(self.modes)}")
         mode = self.modes[index - 1]
-        return {"natural_frequency": mode.natural_frequency_hz, "damping_ratio": mode.damping_ratio,
-                "damped_frequency": mode.damped_frequency_hz}[name]
+        value = {"natural_frequency": mode.natural_frequency_hz, "damping_ratio": mode.damping_ratio,
+                 "damped_frequency": mode.damped_frequency_hz}[name]
+        if np.isfinite(value):
+            return value
+        if mode.kind == "unstable":
+            raise self._fail(f"{name}({index}) is not defined: mode {index} is unstable and grows "
+                             f"without oscillating (growth rate {mode.growth_rate_per_s:.4g} 1/s, "
+                             f"doubling time {mode.doubling_time_s:.4g} s)",
+                             "stabilise the design, or query another mode")
+        raise self._fail(f"{name}({index}) is not defined for mode {index} ({mode.kind})",
+                         "query another mode")
+
+    def _undamped(self, index: int) -> float:
+        """Hz: the index-th frequency of K φ = ω² M φ (damping and skew parts left out),
+        ascending; not paired with the damped modes."""
+        if self.linear is None:
+            raise self._fail(f"undamped_frequency({index}) needs the linearised system",
+                             "set [analysis] modes = true and equilibrium = true")
+        K, M = (self.linear.S + self.linear.S.T) / 2, self.linear.M
+        w2 = scipy_eigh(K, M, eigvals_only=True) if M.size else np.zeros(0)
+        if not 1 <= index <= len(w2):
+            raise self._fail(f"mode {index} does not exist: the calc has {len(w2)} mode(s)",
+                             f"ask for a mode between 1 and {len(w2)}")
+        value = float(w2[index - 1])
+        if value < -1e-9 * max(1.0, float(np.max(np.abs(w2)))):
+            raise self._fail(f"undamped_frequency({index}) is not defined: the stiffness is negative "
+                             "in that direction (unstable)", "query another mode")
+        return float(np.sqrt(max(value, 0.0))) / (2 * np.pi)
 
     # ---- oscillation measures --------------------------------------------------
     def _oscillation(self, name: str, coordinate: str, history: History) -> float:
