@@ -228,7 +228,8 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
 def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> None:
     th = spec.time_history
     powers = simulate.power_functions(derivation, ctx.params)
-    first, second = simulate.integrate(system, th, np.concatenate([q0, qd0]), powers)
+    first, second, grid = simulate.integrate(system, th, np.concatenate([q0, qd0]), powers,
+                                             linear_hz=_highest_linear_hz(ctx))
     for run, role in ((first, "primary"), (second, "independent")):
         s = run.solver
         detail = f"status {s.status}: {s.message}; {s.nfev} evaluations"
@@ -249,12 +250,16 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
     LAM = np.zeros((system.m, len(t)))
     for k in range(len(t)):
         QDD[:, k], LAM[:, k] = system.accelerations(t[k], Q[:, k], QD[:, k])
-    ctx.history = History(t=t, Q=Q, QD=QD, QDD=QDD, LAM=LAM, dense=first.dense)
+    ctx.history = History(t=t, Q=Q, QD=QD, QDD=QDD, LAM=LAM, dense=first.dense,
+                          grid=simulate.step_grid(first, t))
     agreement = simulate.agreement(first, second, n) if second.solver.success else float("nan")
     if second.solver.success:
         checks.append(m.Check("integrators", "two integrators agree", agreement <= th.agreement_tolerance,
                               f"largest normalised difference {agreement:.2e} "
-                              f"(tolerance {th.agreement_tolerance:g})"))
+                              f"(tolerance {th.agreement_tolerance:g}) at {len(grid.t)} times: the samples, "
+                              f"every primary step and {simulate.POINTS_PER_PERIOD} per period of "
+                              f"{grid.fastest_hz:.4g} Hz ({grid.basis} fastest frequency)"
+                              + (f", uniform part capped at {simulate.MAX_UNIFORM}" if grid.capped else "")))
     drift = None
     if system.m:
         G = np.array([system.constraint_values(tk, Q[:, k]) for k, tk in enumerate(t)])
@@ -263,19 +268,75 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
         checks.append(m.Check("constraint", "constraint drift", drift <= 1e-6 * scale,
                               f"largest |g| = {drift:.2e} (tolerance {1e-6 * scale:.2e})"))
     series = _series(spec, ctx, Q, QD, LAM)
+    note = _sampling_note(spec, ctx, series, grid)
+    checks.append(m.Check("sampling", "samples resolve the motion", True, note or (
+        f"{th.points} samples, at least {simulate.POINTS_PER_PERIOD} per period of {grid.fastest_hz:.4g} Hz "
+        f"({grid.basis} fastest frequency); extremes from the dense solution")))
     report.time_history = m.TimeHistory(t=t, series=tuple(series), primary=first.solver,
                                         secondary=second.solver, agreement=agreement,
                                         agreement_tolerance=th.agreement_tolerance,
-                                        constraint_drift=drift)
+                                        constraint_drift=drift, comparison_points=len(grid.t),
+                                        fastest_hz=grid.fastest_hz, fastest_basis=grid.basis,
+                                        sampling_note=note)
     report.energy = audit(derivation, ctx.params, t, Q, QD, QDD, LAM, Y[2 * n], Y[2 * n + 1],
                           spec.analysis.energy_tolerance, state=first.dense)
     checks.append(m.Check("energy", "energy audit", report.energy.passed,
                           f"largest relative residual {report.energy.max_relative_residual:.2e} "
                           f"(tolerance {report.energy.tolerance:g})"))
-    report.outputs = tuple(_summary(o, ctx.series(o.expr)) for o in spec.outputs) + tuple(
-        _summary(c, LAM[i], label=c.label or "constraint force") for i, c in enumerate(spec.constraints))
+    report.outputs = tuple(_summary(o, ctx.extremes(o.expr)) for o in spec.outputs) + tuple(
+        _summary(c, ctx.extremes(derivation.lambdas[i]), label=c.label or "constraint force")
+        for i, c in enumerate(spec.constraints))
     if any(not np.isfinite([s.peak, s.max, s.min]).all() for s in report.outputs):
         checks.append(m.Check("outputs", "outputs finite", False, "an output is not finite"))
+
+
+def _highest_linear_hz(ctx) -> float:
+    """Highest natural frequency of the linearised modes, Hz; 0 without modes."""
+    values = [float(md.natural_frequency_hz) for md in ctx.modes]
+    values = [v for v in values if np.isfinite(v)]
+    return max(values, default=0.0)
+
+
+SAMPLING_DEVIATION = 0.01         # coarse when the samples miss more than this fraction of a range
+
+
+def _sampling_note(spec, ctx, series, grid) -> str:
+    """'' when the samples show the motion; otherwise the coarse-sampling note for the page and `check`.
+
+    Coarse: fewer than POINTS_PER_PERIOD samples per period of the fastest
+    frequency seen, or a series whose samples, joined by straight lines, depart
+    from the dense solution by more than SAMPLING_DEVIATION of its range.
+    """
+    th = spec.time_history
+    fine = ctx.fine()
+    dt = th.duration / (th.points - 1)
+    per_period = 1.0 / (grid.fastest_hz * dt) if grid.fastest_hz > 0 else np.inf
+    worst, where = 0.0, ""
+    for s, values in zip(series, _fine_values(spec, ctx, fine)):
+        span = float(np.max(values) - np.min(values))
+        if span <= 1e-12 * max(1.0, float(np.max(np.abs(values)))):
+            continue
+        gap = float(np.max(np.abs(values - np.interp(fine.t, ctx.history.t, s.values)))) / span
+        if gap > worst:
+            worst, where = gap, s.name
+    if per_period >= simulate.POINTS_PER_PERIOD and worst <= SAMPLING_DEVIATION:
+        return ""
+    wanted = max(int(np.ceil(simulate.POINTS_PER_PERIOD * grid.fastest_hz * th.duration)) + 1,
+                 int(np.ceil((th.points - 1) * np.sqrt(max(worst, 1e-300) / SAMPLING_DEVIATION))) + 1)
+    return (f"coarse sampling: {th.points} samples (every {dt:.3g} s) give {per_period:.3g} per period "
+            f"of the fastest frequency seen, {grid.fastest_hz:.4g} Hz ({grid.basis}); between samples "
+            f"the plotted record departs from the solution by up to {100 * worst:.3g} % of the range "
+            f"of {where}. Peaks, max, min, criteria and the integrator comparison are taken from the "
+            f"dense solution; set [time_history] points = {wanted} or more for plots that show the motion")
+
+
+def _fine_values(spec, ctx, fine) -> list[np.ndarray]:
+    """The series of `_series`, in display units, on the fine grid."""
+    out = [fine.Q[i] / c.factor for i, c in enumerate(spec.coordinates)]
+    out += [fine.QD[i] / c.factor for i, c in enumerate(spec.coordinates)]
+    out += [fine.LAM[i] / c.factor for i, c in enumerate(spec.constraints)]
+    out += [ctx.series(o.expr, fine) / o.factor for o in spec.outputs]
+    return out
 
 
 def _series(spec, ctx, Q, QD, LAM) -> list[m.Series]:
@@ -292,12 +353,14 @@ def _series(spec, ctx, Q, QD, LAM) -> list[m.Series]:
     return out
 
 
-def _summary(o, values: np.ndarray, label: str | None = None) -> m.OutputSummary:
-    """Peak, max and min of an output or constraint force, in its display unit."""
-    v = values / o.factor
+def _summary(o, found, label: str | None = None) -> m.OutputSummary:
+    """Peak, max and min of an output or constraint force from the dense solution, in its display unit.
+
+    `found` is a verification.extremes.Extremes in SI (display factors are positive).
+    """
     return m.OutputSummary(name=o.name, unit=o.unit, label=o.label if label is None else label,
-                           peak=float(np.max(np.abs(v))),
-                           max=float(np.max(v)), min=float(np.min(v)))
+                           peak=found.peak / o.factor, max=found.max / o.factor, min=found.min / o.factor,
+                           t_peak=found.t_peak, t_max=found.t_max, t_min=found.t_min)
 
 
 def _results(spec, ctx: QueryContext, report, checks) -> None:

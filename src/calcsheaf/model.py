@@ -176,6 +176,10 @@ class TimeHistory:
     agreement: float                  # largest normalised difference between the two
     agreement_tolerance: float
     constraint_drift: float | None = None
+    comparison_points: int = 0        # times at which the two integrators were compared
+    fastest_hz: float = float("nan")  # fastest frequency seen (linearised or observed), Hz
+    fastest_basis: str = ""           # "linearised" or "observed"
+    sampling_note: str = ""           # non-empty when the samples are coarse against the motion
 
 
 @dataclass(frozen=True)
@@ -199,9 +203,12 @@ class OutputSummary:
     name: str
     unit: str
     label: str
-    peak: float
+    peak: float                       # max |value| over the dense solution, in `unit`
     max: float
     min: float
+    t_peak: float = float("nan")      # s, when the peak, max and min occur
+    t_max: float = float("nan")
+    t_min: float = float("nan")
 
 
 @dataclass(frozen=True)
