@@ -210,6 +210,15 @@ class CriterionRow:
 
 
 @dataclass(frozen=True)
+class CrosscheckInput:
+    """One handbook input of a crosscheck: the calc expression as written and its value."""
+    name: str                         # the case's input name, e.g. "L"
+    expr: str                         # as written in the calc, e.g. "L*M/(M + m)"
+    value: float                      # SI, in `unit`
+    unit: str                         # the case's SI unit of this input ("1" for a pure number)
+
+
+@dataclass(frozen=True)
 class CrosscheckRow:
     case: str
     title: str
@@ -220,9 +229,14 @@ class CrosscheckRow:
     relative_error: float
     tolerance: float
     tolerance_reason: str
-    passed: bool
-    source: str
+    passed: bool                      # within tolerance AND independent
+    source: str                       # citation: book, edition, chapter topic
     validity: tuple[tuple[str, bool], ...] = ()   # (limit as text, holds?)
+    inputs: tuple[CrosscheckInput, ...] = ()
+    query: str = ""                   # the compared query as written, e.g. "natural_frequency(2)"
+    unit: str = ""                    # SI unit of the quantity ("1" for a pure number)
+    independent: bool = True          # False: the comparison cannot fail on its own
+    dependence: str = ""              # why it is not independent ("" when it is)
 
 
 @dataclass

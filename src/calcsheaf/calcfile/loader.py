@@ -739,7 +739,8 @@ class _CalcLoader:
             tolerance = self.number(f"{key}.tolerance", row.get("tolerance"), None)
             if case is None or any(e is None for _, e in ins) or any(e is None for _, e, _ in cmp):
                 continue
-            out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance))
+            out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance,
+                                    input_texts=tuple((n, str(v)) for n, v in inputs.items())))
         return tuple(out)
 
 

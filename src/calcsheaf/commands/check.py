@@ -29,6 +29,7 @@ def check(project_root: Path, out=None, err=None) -> int:
         failed += not report.passed
         print(f"{verdict}  {report.number:<10} {report.title}  checks {passed}/{len(report.checks)}"
               f"  max D/C {dc}  energy residual {energy}", file=out)
+        _dependent_crosschecks(report, out)
         for c in report.checks:
             if not c.passed:
                 print(_indent(f"{outcome.path.name}: {c.kind}: {c.name}: {c.detail}"), file=err)
@@ -37,6 +38,14 @@ def check(project_root: Path, out=None, err=None) -> int:
     total = len(outcomes)
     print(f"{total - failed} of {total} calc(s) passed ({project.number} {project.name})", file=out)
     return 1 if failed else 0
+
+
+def _dependent_crosschecks(report, out) -> None:
+    """Say which crosschecks cannot fail on their own (they count as failed checks)."""
+    for x in report.crosschecks:
+        if not x.independent:
+            print(_indent(f"crosscheck not independent: {x.case}: {x.quantity} = {x.query}: "
+                          f"{x.dependence}"), file=out)
 
 
 def _indent(text: str) -> str:

@@ -63,7 +63,11 @@ def results_dict(report: CalcReport, project: ProjectInfo | None = None) -> dict
                             "computed": _num(x.computed), "relative_error": _num(x.relative_error),
                             "tolerance": x.tolerance, "pass": x.passed, "source": x.source,
                             "formula": x.formula, "tolerance_reason": x.tolerance_reason,
-                            "validity": [{"limit": text, "holds": holds} for text, holds in x.validity]}
+                            "validity": [{"limit": text, "holds": holds} for text, holds in x.validity],
+                            "unit": x.unit, "query": x.query,
+                            "inputs": {i.name: {"expr": i.expr, "value": _num(i.value), "unit": i.unit}
+                                       for i in x.inputs},
+                            "independent": x.independent, "dependence": x.dependence}
                            for x in report.crosschecks]
     data["checks"] = [{"kind": c.kind, "name": c.name, "pass": c.passed, "detail": c.detail}
                       for c in report.checks]
