@@ -144,7 +144,8 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         values={c.name: float(v) / c.factor for c, v in zip(spec.coordinates, point.q)},
         units={c.name: c.unit for c in spec.coordinates}, stable=stable, verdict=verdict,
         residual=point.residual,
-        multipliers={c.name: float(v) / c.factor for c, v in zip(spec.constraints, point.lambdas)})
+        multipliers={c.name: float(v) / c.factor for c, v in zip(spec.constraints, point.lambdas)},
+        multiplier_units={c.name: c.unit for c in spec.constraints})
     ctx.equilibrium = {n: float(v) for n, v in zip(names, point.q)}
     checks.append(m.Check("equilibrium", "static equilibrium", True,
                           f"found, residual {point.residual:.2e}; {verdict}"))
@@ -161,6 +162,11 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
 
 
 def _frequency_response(spec, ctx: QueryContext, report) -> None:
+    """Steady amplitudes and phases over the range, each in its display unit (mm, deg, kN).
+
+    Outputs that have no linear response (they depend on time or a constraint force)
+    or whose linearisation about the equilibrium is zero are listed as omitted, not plotted.
+    """
     fr = spec.frequency_response
     if fr is None or ctx.linear is None:
         return
@@ -172,23 +178,34 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
     freqs = frequency.grid(fr.start_hz, fr.stop_hz, fr.points, fr.spacing)
     ctx.freqs = freqs
     X = frequency.sweep(ctx.linear, force, freqs)
-    amplitude, phase, units = {}, {}, {}
+    amplitude, phase, units, peaks, omitted = {}, {}, {}, {}, {}
     for c, row in zip(spec.coordinates, X):
-        amplitude[c.name] = np.abs(row)
-        phase[c.name] = np.degrees(np.angle(row))
-        units[c.name] = c.si_unit
+        _response_row(c, row, ctx.amplitude_function(c.name), freqs,
+                      amplitude, phase, units, peaks)
     for o in spec.outputs:
         try:
             amp = ctx.amplitude_function(o.name)
         except AnalysisError:
+            omitted[o.name] = "depends on time or a constraint force: no linear response"
             continue
-        values = np.array([amp.complex(f) for f in freqs]) / o.factor
-        amplitude[o.name] = np.abs(values)
-        phase[o.name] = np.degrees(np.angle(values))
-        units[o.name] = o.unit
+        values = np.array([amp.complex(f) for f in freqs])
+        if not np.any(np.abs(values) > 0):
+            omitted[o.name] = "linearises to zero about the equilibrium (no first-order response)"
+            continue
+        _response_row(o, values, amp, freqs, amplitude, phase, units, peaks)
     report.frequency_response = m.FrequencyResponse(
         frequency_hz=freqs, amplitude=amplitude, phase_deg=phase, units=units,
-        excitation={n: text for n, _, text in fr.force})
+        excitation={n: text for n, _, text in fr.force}, peaks=peaks, omitted=omitted)
+
+
+def _response_row(item, complex_si, amplitude_at, freqs, amplitude, phase, units, peaks) -> None:
+    """One coordinate or output: |X| and its peak in the display unit, phase in degrees."""
+    magnitude = np.abs(complex_si)
+    amplitude[item.name] = magnitude / item.factor
+    phase[item.name] = np.degrees(np.angle(complex_si))
+    units[item.name] = item.unit
+    best, where = frequency.peak(amplitude_at, freqs, magnitude)
+    peaks[item.name] = m.ResponsePeak(amplitude=best / item.factor, frequency_hz=where)
 
 
 def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> None:

@@ -99,6 +99,7 @@ class Equilibrium:
     verdict: str                      # e.g. "stable: stiffness positive definite"
     residual: float                   # largest |generalised force| left at the solution
     multipliers: dict[str, float] = field(default_factory=dict)   # constraint forces at rest, display unit
+    multiplier_units: dict[str, str] = field(default_factory=dict)  # constraint -> that display unit
 
 
 @dataclass(frozen=True)
@@ -123,12 +124,21 @@ class Linearisation:
 
 
 @dataclass(frozen=True)
+class ResponsePeak:
+    """Largest steady amplitude of one coordinate or output over the swept range."""
+    amplitude: float                  # in the display unit of the coordinate or output
+    frequency_hz: float
+
+
+@dataclass(frozen=True)
 class FrequencyResponse:
     frequency_hz: np.ndarray
-    amplitude: dict[str, np.ndarray]  # coordinate or output -> amplitude (SI)
+    amplitude: dict[str, np.ndarray]  # coordinate or output -> amplitude, in units[name]
     phase_deg: dict[str, np.ndarray]
-    units: dict[str, str]
+    units: dict[str, str]             # display unit of each coordinate or output (mm, deg, kN)
     excitation: dict[str, str]        # coordinate -> amplitude expression text
+    peaks: dict[str, ResponsePeak] = field(default_factory=dict)
+    omitted: dict[str, str] = field(default_factory=dict)   # output -> why it is not shown
 
 
 @dataclass(frozen=True)

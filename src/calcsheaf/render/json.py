@@ -34,6 +34,9 @@ def results_dict(report: CalcReport, project: ProjectInfo | None = None) -> dict
         data["equilibrium"] = {name: {"value": _num(value), "unit": eq.units[name]}
                                for name, value in eq.values.items()}
         data["stability"] = {"stable": report.equilibrium.stable, "verdict": report.equilibrium.verdict}
+        data["constraint_forces_at_rest"] = {
+            name: {"value": _num(value), "unit": eq.multiplier_units.get(name, "")}
+            for name, value in eq.multipliers.items()}
     data["modes"] = [{"index": m.index, "kind": m.kind, "natural_frequency_hz": _num(m.natural_frequency_hz),
                       "natural_frequency_rad_s": _num(m.natural_frequency_rad_s),
                       "damping_ratio": _num(m.damping_ratio), "damped_frequency_hz": _num(m.damped_frequency_hz),
@@ -42,6 +45,8 @@ def results_dict(report: CalcReport, project: ProjectInfo | None = None) -> dict
                        for r in report.results}
     data["outputs"] = {o.name: {"peak": _num(o.peak), "max": _num(o.max), "min": _num(o.min),
                                 "unit": o.unit, "label": o.label} for o in report.outputs}
+    if report.frequency_response is not None:
+        data["frequency_response"] = _frequency_response(report.frequency_response)
     if report.energy is not None:
         e = report.energy
         data["energy_audit"] = {"max_relative_residual": _num(e.max_relative_residual),
@@ -74,6 +79,17 @@ def results_dict(report: CalcReport, project: ProjectInfo | None = None) -> dict
     data["software"] = dict(sorted(report.software.items()))
     data["passed"] = report.passed
     return data
+
+
+def _frequency_response(fr) -> dict:
+    """Range, excitation, each quantity's largest amplitude (display unit) and what is omitted."""
+    freqs = fr.frequency_hz
+    return {"from_hz": _num(freqs[0]) if len(freqs) else None,
+            "to_hz": _num(freqs[-1]) if len(freqs) else None, "points": int(len(freqs)),
+            "excitation": dict(fr.excitation),
+            "peaks": {name: {"amplitude": _num(p.amplitude), "unit": fr.units.get(name, ""),
+                             "frequency_hz": _num(p.frequency_hz)} for name, p in fr.peaks.items()},
+            "omitted": dict(fr.omitted)}
 
 
 def results_json(report: CalcReport, project: ProjectInfo | None = None) -> bytes:
