@@ -222,3 +222,17 @@ def test_failed_calc_keeps_its_hazard_cautions(tmp_path):
     page = render_calc(calc, project(tmp_path))
     assert HAZARD_MARKS["rotating_machinery"] in page.print_html
     assert "Rotating machinery: unbalance, resonance" in page.html
+
+
+def test_sheets_cite_book_edition_topic_and_never_from_memory():
+    from calcsheaf.verification.handbook import CASES, table
+
+    for case in CASES.values():
+        # what the sheets print (crosscheck rows, selftest pages and calcs) is the citation
+        assert "memory" not in case.source.lower(), case.key
+        assert "ed.," in case.source, case.key                  # an edition is named
+        assert "section" not in case.source.lower(), case.key   # no recalled section numbers
+        # what was recalled is marked where the marking belongs: the docs-facing note
+        assert "(from memory)" in case.source_note, case.key
+        assert f"[[reference]]\nid = \"R1\"\ntext = \"{case.source}\"" in case.selftest_calc
+        assert case.source_note in table.case_section(case)
