@@ -25,7 +25,7 @@ from .mechanics.equilibrium import find_equilibrium
 from .mechanics.lagrange import derive
 from .software import versions
 from .verification.checks import judge_criteria, run_crosschecks
-from .verification.queries import History, QueryContext
+from .verification.queries import History, QueryContext, output_gains
 
 
 def analyse_calc_file(path: Path, project_toml: Path | None = None) -> m.CalcReport:
@@ -183,11 +183,10 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
         _response_row(c, row, ctx.amplitude_function(c.name), freqs,
                       amplitude, phase, units, peaks)
     for o in spec.outputs:
-        try:
-            amp = ctx.amplitude_function(o.name)
-        except AnalysisError:
+        if output_gains(ctx, o.name) is None:
             omitted[o.name] = "depends on time or a constraint force: no linear response"
             continue
+        amp = ctx.amplitude_function(o.name)
         values = np.array([amp.complex(f) for f in freqs])
         if not np.any(np.abs(values) > 0):
             omitted[o.name] = "linearises to zero about the equilibrium (no first-order response)"
