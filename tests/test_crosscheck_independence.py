@@ -137,16 +137,18 @@ compare = { displacement_m = "at(x, 0.13)" }
     assert not report.passed
 
 
-def test_compared_value_of_parameters_only_is_not_independent(tmp_path):
+def test_comparison_of_parameters_can_fail_and_is_independent(tmp_path):
+    # a design value against the case's closed form (here k/2 against sqrt(k/m)/(2 pi)
+    # evaluated with k): it fails on its own when the numbers differ, so it is a real check
     report = analysed(tmp_path, """
 [[crosscheck]]
 case = "sdof_viscous"
 inputs = { m = "m", k = "k", c = "c" }
-compare = { natural_frequency_hz = "sqrt(k/m)/(2*pi)" }
+compare = { natural_frequency_hz = "sqrt(k/(2*m))/(2*pi)" }
 """)
     (row,) = report.crosschecks
-    assert row.relative_error < 1e-12 and not row.independent and not row.passed
-    assert "only parameters" in row.dependence
+    assert row.independent and not row.passed
+    assert row.relative_error == pytest.approx(1 - 1 / math.sqrt(2), rel=1e-12)
 
 
 def test_render_shows_inputs_query_and_the_flag(tmp_path):
