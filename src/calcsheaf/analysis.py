@@ -26,7 +26,7 @@ from .mechanics.lagrange import derive
 from .software import versions
 from .verification.checks import judge_criteria, run_crosschecks
 from .verification.lagrange_check import equations_check
-from .verification.queries import History, QueryContext
+from .verification.queries import History, QueryContext, output_gains
 
 
 def analyse_calc_file(path: Path, project_toml: Path | None = None) -> m.CalcReport:
@@ -156,7 +156,8 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         kind=point.kind, time_s=point.time, note=point.note,
         velocities={c.name: float(v) / c.factor for c, v in zip(spec.coordinates, point.qd) if v != 0},
         growth_rate_per_s=stability.growth_rate, doubling_time_s=stability.doubling_time,
-        expected_unstable=expect)
+        expected_unstable=expect,
+        multiplier_units={c.name: c.unit for c in spec.constraints})
     ctx.equilibrium = {n: float(v) for n, v in zip(names, point.q)}
     checks.append(m.Check("equilibrium", "static equilibrium" if point.kind != "steady motion"
                           else "steady motion (relative equilibrium)", True,
@@ -195,6 +196,11 @@ def _stability_check(spec, stability) -> m.Check:
 
 
 def _frequency_response(spec, ctx: QueryContext, report) -> None:
+    """Steady amplitudes and phases over the range, each in its display unit (mm, deg, kN).
+
+    Outputs that have no linear response (they depend on time or a constraint force)
+    or whose linearisation about the equilibrium is zero are listed as omitted, not plotted.
+    """
     fr = spec.frequency_response
     if fr is None or ctx.linear is None:
         return
@@ -206,23 +212,33 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
     freqs = frequency.grid(fr.start_hz, fr.stop_hz, fr.points, fr.spacing)
     ctx.freqs = freqs
     X = frequency.sweep(ctx.linear, force, freqs)
-    amplitude, phase, units = {}, {}, {}
+    amplitude, phase, units, peaks, omitted = {}, {}, {}, {}, {}
     for c, row in zip(spec.coordinates, X):
-        amplitude[c.name] = np.abs(row)
-        phase[c.name] = np.degrees(np.angle(row))
-        units[c.name] = c.si_unit
+        _response_row(c, row, ctx.amplitude_function(c.name), freqs,
+                      amplitude, phase, units, peaks)
     for o in spec.outputs:
-        try:
-            amp = ctx.amplitude_function(o.name)
-        except AnalysisError:
+        if output_gains(ctx, o.name) is None:
+            omitted[o.name] = "depends on time or a constraint force: no linear response"
             continue
-        values = np.array([amp.complex(f) for f in freqs]) / o.factor
-        amplitude[o.name] = np.abs(values)
-        phase[o.name] = np.degrees(np.angle(values))
-        units[o.name] = o.unit
+        amp = ctx.amplitude_function(o.name)
+        values = np.array([amp.complex(f) for f in freqs])
+        if not np.any(np.abs(values) > 0):
+            omitted[o.name] = "linearises to zero about the equilibrium (no first-order response)"
+            continue
+        _response_row(o, values, amp, freqs, amplitude, phase, units, peaks)
     report.frequency_response = m.FrequencyResponse(
         frequency_hz=freqs, amplitude=amplitude, phase_deg=phase, units=units,
-        excitation={n: text for n, _, text in fr.force})
+        excitation={n: text for n, _, text in fr.force}, peaks=peaks, omitted=omitted)
+
+
+def _response_row(item, complex_si, amplitude_at, freqs, amplitude, phase, units, peaks) -> None:
+    """One coordinate or output: |X| and its peak in the display unit, phase in degrees."""
+    magnitude = np.abs(complex_si)
+    amplitude[item.name] = magnitude / item.factor
+    phase[item.name] = np.degrees(np.angle(complex_si))
+    units[item.name] = item.unit
+    best, where = frequency.peak(amplitude_at, freqs, magnitude)
+    peaks[item.name] = m.ResponsePeak(amplitude=best / item.factor, frequency_hz=where)
 
 
 def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> None:

@@ -107,6 +107,7 @@ class Equilibrium:
     growth_rate_per_s: float = float("nan")   # largest growth rate of an unstable equilibrium, 1/s
     doubling_time_s: float = float("nan")     # ln 2 / growth rate, s
     expected_unstable: bool = False   # [analysis] expect_unstable
+    multiplier_units: dict[str, str] = field(default_factory=dict)  # constraint -> that display unit
 
 
 @dataclass(frozen=True)
@@ -140,12 +141,21 @@ class Linearisation:
 
 
 @dataclass(frozen=True)
+class ResponsePeak:
+    """Largest steady amplitude of one coordinate or output over the swept range."""
+    amplitude: float                  # in the display unit of the coordinate or output
+    frequency_hz: float
+
+
+@dataclass(frozen=True)
 class FrequencyResponse:
     frequency_hz: np.ndarray
-    amplitude: dict[str, np.ndarray]  # coordinate or output -> amplitude (SI)
+    amplitude: dict[str, np.ndarray]  # coordinate or output -> amplitude, in units[name]
     phase_deg: dict[str, np.ndarray]
-    units: dict[str, str]
+    units: dict[str, str]             # display unit of each coordinate or output (mm, deg, kN)
     excitation: dict[str, str]        # coordinate -> amplitude expression text
+    peaks: dict[str, ResponsePeak] = field(default_factory=dict)
+    omitted: dict[str, str] = field(default_factory=dict)   # output -> why it is not shown
 
 
 @dataclass(frozen=True)
@@ -234,6 +244,15 @@ class CriterionRow:
 
 
 @dataclass(frozen=True)
+class CrosscheckInput:
+    """One handbook input of a crosscheck: the calc expression as written and its value."""
+    name: str                         # the case's input name, e.g. "L"
+    expr: str                         # as written in the calc, e.g. "L*M/(M + m)"
+    value: float                      # SI, in `unit`
+    unit: str                         # the case's SI unit of this input ("1" for a pure number)
+
+
+@dataclass(frozen=True)
 class CrosscheckRow:
     case: str
     title: str
@@ -244,9 +263,14 @@ class CrosscheckRow:
     relative_error: float
     tolerance: float
     tolerance_reason: str
-    passed: bool
-    source: str
+    passed: bool                      # within tolerance AND independent
+    source: str                       # citation: book, edition, chapter topic
     validity: tuple[tuple[str, bool], ...] = ()   # (limit as text, holds?)
+    inputs: tuple[CrosscheckInput, ...] = ()
+    query: str = ""                   # the compared query as written, e.g. "natural_frequency(2)"
+    unit: str = ""                    # SI unit of the quantity ("1" for a pure number)
+    independent: bool = True          # False: the comparison cannot fail on its own
+    dependence: str = ""              # why it is not independent ("" when it is)
 
 
 @dataclass

@@ -17,7 +17,7 @@ import sympy as sp
 from ..errors import CalcsheafError, InputError, ProblemList
 from ..model import Assumption, Reference
 from . import spec as S
-from .expressions import RESERVED_NAMES, Scope, Where, parse_expression, velocity
+from .expressions import RESERVED_NAMES, Scope, Where, parse_expression, query_name, velocity
 from .text_links import local_targets
 from .toml_source import read_toml, value_column
 from .units import (DIMENSIONLESS, DimensionChecker, describe, parse_quantity, parse_unit,
@@ -505,7 +505,7 @@ class _CalcLoader:
                 continue
             force_dim = ureg.joule.dimensionality / dim
             self.dims[name] = force_dim
-            unit_text = self.string(f"{key}.unit", row.get("unit"), si_unit_text(force_dim))
+            unit_text = self.string(f"{key}.unit", row.get("unit"), _force_unit(force_dim))
             unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text, force_dim))
             if unit is None:
                 continue
@@ -648,7 +648,8 @@ class _CalcLoader:
         dim = DimensionChecker(self.dims, self.where(f"{key}.expr")).infer(expr)
         unit_text = self.string(f"{key}.unit", row.get("unit"), None)
         if unit_text is None:
-            unit_text = si_unit_text(dim)
+            unit_text = _frequency_unit(expr) if dim == ureg.hertz.dimensionality else None
+            unit_text = unit_text or si_unit_text(dim)
         unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text,
                                                        DIMENSIONLESS if dim is None else dim))
         if unit is None:
@@ -740,8 +741,44 @@ class _CalcLoader:
             tolerance = self.number(f"{key}.tolerance", row.get("tolerance"), None)
             if case is None or any(e is None for _, e in ins) or any(e is None for _, e, _ in cmp):
                 continue
-            out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance))
+            out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance,
+                                    input_texts=tuple((n, str(v)) for n, v in inputs.items())))
         return tuple(out)
+
+
+_HERTZ_QUERIES = frozenset({"natural_frequency", "damped_frequency", "frf_peak_frequency"})
+
+
+def _force_unit(dim) -> str:
+    """Default unit of a constraint force: N·m for a constraint on angles (a moment), else SI."""
+    return "N*m" if dim == ureg.joule.dimensionality else si_unit_text(dim)
+
+
+def _frequency_unit(expr: sp.Expr) -> str | None:
+    """Default unit of a result that is a frequency: "Hz" for a frequency query
+    (natural_frequency, damped_frequency, frf_peak_frequency) or 1/period(q), alone, scaled
+    by a plain number, summed, differenced or through abs/min/max; "rad/s" for 2*pi times
+    such a frequency; None when the expression is not recognisably one (then SI, 1/s)."""
+    if isinstance(expr, sp.Mul):
+        numbers = sp.Mul(*[a for a in expr.args if a.is_number])
+        rest = sp.Mul(*[a for a in expr.args if not a.is_number])
+        if _in_hertz(rest) and numbers.has(sp.pi):
+            return "rad/s" if (numbers / (2 * sp.pi)).is_rational else None
+    return "Hz" if _in_hertz(expr) else None
+
+
+def _in_hertz(expr: sp.Expr) -> bool:
+    if query_name(expr.func) in _HERTZ_QUERIES:
+        return True
+    if isinstance(expr, sp.Pow) and expr.exp == -1:
+        return query_name(expr.base.func) == "period"
+    if isinstance(expr, sp.Mul):
+        numbers = [a for a in expr.args if a.is_number]
+        rest = [a for a in expr.args if not a.is_number]
+        return len(rest) == 1 and not any(a.has(sp.pi) for a in numbers) and _in_hertz(rest[0])
+    if isinstance(expr, (sp.Add, sp.Abs, sp.Min, sp.Max)):
+        return all(_in_hertz(a) for a in expr.args)
+    return False
 
 
 def _toml_key(name: str) -> str:

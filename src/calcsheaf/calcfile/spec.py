@@ -80,6 +80,7 @@ class Crosscheck:
     inputs: tuple[tuple[str, sp.Expr], ...]
     compare: tuple[tuple[str, sp.Expr, str], ...]      # quantity, query expr, text
     tolerance: float | None = None
+    input_texts: tuple[tuple[str, str], ...] = ()       # input name, expression as written
 
 
 @dataclass(frozen=True)

@@ -31,6 +31,7 @@ def check(project_root: Path, out=None, err=None) -> int:
               f"  max D/C {dc}  energy residual {energy}", file=out)
         if report.equilibrium is not None and not report.equilibrium.stable:
             print(_indent(f"{outcome.path.name}: {_instability(report.equilibrium)}"), file=out)
+        _dependent_crosschecks(report, out)
         for c in report.checks:
             if not c.passed:
                 print(_indent(f"{outcome.path.name}: {c.kind}: {c.name}: {c.detail}"), file=err)
@@ -48,6 +49,14 @@ def _instability(eq) -> str:
     expected = " (expected: [analysis] expect_unstable = true)" if eq.expected_unstable else ""
     return (f"unstable: growth rate {eq.growth_rate_per_s:.4g} 1/s, doubling time "
             f"{eq.doubling_time_s:.4g} s{expected}")
+
+
+def _dependent_crosschecks(report, out) -> None:
+    """Say which crosschecks cannot fail on their own (they count as failed checks)."""
+    for x in report.crosschecks:
+        if not x.independent:
+            print(_indent(f"crosscheck not independent: {x.case}: {x.quantity} = {x.query}: "
+                          f"{x.dependence}"), file=out)
 
 
 def _indent(text: str) -> str:
