@@ -177,11 +177,18 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
         amplitude[c.name] = np.abs(row)
         phase[c.name] = np.degrees(np.angle(row))
         units[c.name] = c.si_unit
-    for o in spec.outputs:
+    for index, o in enumerate(spec.outputs, start=1):
         try:
             amp = ctx.amplitude_function(o.name)
         except AnalysisError:
             continue
+        except (TypeError, ValueError, ArithmeticError) as exc:   # e.g. acos(x/L) with |x| > L
+            key = f"output[{index}].expr"
+            raise AnalysisError(
+                f"'{o.text}' has no finite real value at the rest state about which the frequency "
+                f"response is linearised ({exc})", file=str(spec.path), line=spec.line(key), key=key,
+                fix="keep every log, sqrt, asin and acos of the output defined at the rest position, "
+                    "or remove [frequency_response]") from None
         values = np.array([amp.complex(f) for f in freqs]) / o.factor
         amplitude[o.name] = np.abs(values)
         phase[o.name] = np.degrees(np.angle(values))

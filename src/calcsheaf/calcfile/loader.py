@@ -17,7 +17,8 @@ import sympy as sp
 from ..errors import CalcsheafError, InputError, ProblemList
 from ..model import Assumption, Reference
 from . import spec as S
-from .expressions import RESERVED_NAMES, Scope, Where, parse_expression, velocity
+from .expressions import (RESERVED_NAMES, Scope, Where, check_with_values, parse_expression,
+                          velocity)
 from .text_links import local_targets
 from .toml_source import read_toml, value_column
 from .units import (DIMENSIONLESS, DimensionChecker, describe, parse_quantity, parse_unit,
@@ -91,6 +92,7 @@ class _CalcLoader:
         # declared names whose value or unit was refused: known to expressions, of any
         # dimension, so that one bad unit is reported once and not again at every use
         self.broken: set[str] = set()
+        self.values: dict[str, float] = {}     # parameter values, SI
 
     # ---- reporting ---------------------------------------------------------
     def where(self, key: str) -> Where:
@@ -249,6 +251,7 @@ class _CalcLoader:
     def expr(self, key: str, text, scope: Scope, expected=None, what: str | None = None) -> sp.Expr:
         where = self.where(key)
         expression = parse_expression(text, scope, where)
+        check_with_values(expression, self.values, where)
         if expected is not None or what is not None:
             checker = DimensionChecker(self.dims, where)
             if expected is None:
@@ -411,6 +414,7 @@ class _CalcLoader:
                 self.dims[name] = None
                 continue
             self.dims[name] = quantity.dimensionality
+            self.values[name] = to_si(quantity)
             out.append(S.Parameter(name=name, given=str(row["value"]), value=to_si(quantity),
                                    unit=si_unit_of(quantity),
                                    dimension=quantity.dimensionality, source=source,
@@ -626,8 +630,10 @@ class _CalcLoader:
             if expr is not None:
                 rows.append((name, expr, str(text)))
         hz = ureg.hertz.dimensionality
-        start = self.attempt(lambda: to_si(self.quantity("frequency_response.from", block["from"], hz, "from")))
-        stop = self.attempt(lambda: to_si(self.quantity("frequency_response.to", block["to"], hz, "to")))
+        start = self.attempt(lambda: to_si(self.quantity("frequency_response.from", block["from"], hz, "from"))) \
+            if "from" in block else None       # a missing key is reported by table()
+        stop = self.attempt(lambda: to_si(self.quantity("frequency_response.to", block["to"], hz, "to"))) \
+            if "to" in block else None
         points = self.number("frequency_response.points", block.get("points"), 400, integer=True)
         spacing = self.string("frequency_response.spacing", block.get("spacing"), "linear")
         if spacing not in ("linear", "log"):
