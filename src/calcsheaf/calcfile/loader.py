@@ -19,6 +19,7 @@ from ..model import Assumption, Reference
 from . import spec as S
 from .expressions import (RESERVED_NAMES, Scope, Where, check_with_values, parse_expression,
                           velocity)
+from .names import display_forms
 from .text_links import local_targets
 from .toml_source import read_toml, value_column
 from .units import (DIMENSIONLESS, DimensionChecker, describe, parse_quantity, parse_unit,
@@ -173,6 +174,18 @@ class _CalcLoader:
             return default
         return value
 
+    def label(self, key: str, value) -> str:
+        """A plain-text label (plot legends, tables): '$' is refused, since the plot library
+        would read $...$ as math (and fail on what it cannot parse) while pages show it as typed."""
+        text = self.string(key, value, "") or ""
+        if "$" in text:
+            self.problem(key, f"label '{text}' contains '$', which the plot library reads as the "
+                         "start of a formula ($...$), while the pages show it as typed",
+                         "write the label as plain text without '$' (Unicode is fine, e.g. "
+                         "'angle θ, positive clockwise'); the symbol of the name is shown beside it")
+            return text.replace("$", "")
+        return text
+
     def markdown(self, key: str, value, default: str = "") -> str:
         """Markdown text; links and images to local files are refused (see text_links)."""
         text = self.string(key, value, default)
@@ -235,6 +248,13 @@ class _CalcLoader:
             return None
         if value in taken:
             self.problem(key, f"'{value}' is already defined at {taken[value]}", "choose a unique name")
+            return None
+        twin = next((other for other in taken if _same_display(other, value)), None)
+        if twin is not None:
+            self.problem(key, f"'{value}' would be shown as the same symbol as '{twin}' ({taken[twin]}): "
+                         f"both display as {_same_display(twin, value)}",
+                         f"rename one of them so that each symbol stands for one quantity, "
+                         f"e.g. {value}_a or {twin}_b")
             return None
         taken[value] = key
         return value
@@ -382,7 +402,7 @@ class _CalcLoader:
             self.dims[f"ddot({name})"] = dim / ureg.second.dimensionality ** 2
             out.append(S.Coordinate(name=name, unit=row["unit"], si_unit=si_unit_text(dim),
                                     dimension=dim, factor=si_factor(unit),
-                                    label=self.string(f"{key}.label", row.get("label"), "")))
+                                    label=self.label(f"{key}.label", row.get("label"))))
         return tuple(out)
 
     def parameters(self, names: dict[str, str], ids: dict[str, str]) -> tuple[S.Parameter, ...]:
@@ -489,7 +509,7 @@ class _CalcLoader:
             if None in pos or None in fvec:
                 continue
             out.append(S.PointForce(position=tuple(pos), force=tuple(fvec),
-                                    label=self.string(f"{key}.label", row.get("label"), "")))
+                                    label=self.label(f"{key}.label", row.get("label"))))
         return tuple(out)
 
     def constraints(self, params, coords, names):
@@ -515,7 +535,7 @@ class _CalcLoader:
                 continue
             out.append(S.Constraint(name=name, equation=equation, unit=unit_text,
                                     factor=si_factor(unit),
-                                    label=self.string(f"{key}.label", row.get("label"), "")))
+                                    label=self.label(f"{key}.label", row.get("label"))))
         return tuple(out)
 
     def _display_unit(self, key: str, text: str, expected):
@@ -660,7 +680,7 @@ class _CalcLoader:
             return None
         self.dims[name] = DIMENSIONLESS if dim is None else dim
         return S.NamedExpr(name=name, expr=expr, text=str(row["expr"]), unit=unit_text,
-                           factor=si_factor(unit), label=self.string(f"{key}.label", row.get("label"), ""))
+                           factor=si_factor(unit), label=self.label(f"{key}.label", row.get("label")))
 
     def outputs(self, params, coords, constraints, names):
         out = []
@@ -747,6 +767,14 @@ class _CalcLoader:
                 continue
             out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance))
         return tuple(out)
+
+
+def _same_display(a: str, b: str) -> str:
+    """The shared display of two calc names (LaTeX, else HTML as plain text), or ""."""
+    (latex_a, html_a), (latex_b, html_b) = display_forms(a), display_forms(b)
+    if latex_a == latex_b:
+        return latex_a
+    return re.sub(r"<[^>]+>", "", html_a) if html_a == html_b else ""
 
 
 def _toml_key(name: str) -> str:
