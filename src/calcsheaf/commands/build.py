@@ -174,7 +174,12 @@ def _swap_in(temp: Path, target: Path) -> None:
     if target.exists():
         old = target.parent / f".{target.name}.old-{os.getpid()}"
         os.rename(target, old)
-        os.rename(temp, target)
+        try:
+            os.rename(temp, target)
+        except OSError:                      # put the previous output back before reporting
+            os.rename(old, target)
+            shutil.rmtree(temp, ignore_errors=True)
+            raise
         shutil.rmtree(old)
     else:
         os.rename(temp, target)
