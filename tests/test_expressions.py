@@ -246,12 +246,14 @@ def test_error_positions_point_at_the_offending_token(text, offset):
     assert info.value.location == f"c.toml:7:{13 + offset - 1}"
 
 
-def test_error_position_after_a_non_ascii_name_counts_characters():
-    """Regression: ast col_offset counts UTF-8 bytes, so positions after a non-ASCII name shifted."""
+def test_a_non_ascii_character_is_refused_at_its_position():
+    """Names are ASCII; a non-ASCII letter is refused where it stands (counted in characters)."""
     scope = Scope(names=NAMES | {"θ"}, coordinates=frozenset({"x"}), velocities=True)
     with pytest.raises(ExpressionError) as info:
-        parse("θ + foo", scope)
+        parse("k + θ", scope)
+    assert "character 'θ' (U+03B8 GREEK SMALL LETTER THETA) is not allowed" in info.value.problem
     assert "character 5 of the expression" in info.value.problem
+    assert "theta for θ" in info.value.fix
 
 
 # ---------------------------------------------------------------------------------------

@@ -216,12 +216,20 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
     for c, row in zip(spec.coordinates, X):
         _response_row(c, row, ctx.amplitude_function(c.name), freqs,
                       amplitude, phase, units, peaks)
-    for o in spec.outputs:
-        if output_gains(ctx, o.name) is None:
-            omitted[o.name] = "depends on time or a constraint force: no linear response"
-            continue
-        amp = ctx.amplitude_function(o.name)
-        values = np.array([amp.complex(f) for f in freqs])
+    for index, o in enumerate(spec.outputs, start=1):
+        try:
+            if output_gains(ctx, o.name) is None:
+                omitted[o.name] = "depends on time or a constraint force: no linear response"
+                continue
+            amp = ctx.amplitude_function(o.name)
+            values = np.array([amp.complex(f) for f in freqs])
+        except (TypeError, ValueError, ArithmeticError) as exc:   # e.g. acos(x/L) with |x| > L
+            key = f"output[{index}].expr"
+            raise AnalysisError(
+                f"'{o.text}' has no finite real value at the rest state about which the frequency "
+                f"response is linearised ({exc})", file=str(spec.path), line=spec.line(key), key=key,
+                fix="keep every log, sqrt, asin and acos of the output defined at the rest position, "
+                    "or remove [frequency_response]") from None
         if not np.any(np.abs(values) > 0):
             omitted[o.name] = "linearises to zero about the equilibrium (no first-order response)"
             continue

@@ -7,13 +7,13 @@ Heavy libraries are imported only by the subcommands that need them.
 from __future__ import annotations
 
 import argparse
-import os
+import errno
 import signal
 import sys
 import threading
 from pathlib import Path
 
-from . import __version__
+from . import __version__, settings
 from .errors import CalcsheafError, UsageError
 
 
@@ -31,6 +31,17 @@ def _positive(text: str) -> int:
         value = 0
     if value < 1:
         raise argparse.ArgumentTypeError(f"--jobs must be a whole number of at least 1, got {text!r}")
+    return value
+
+
+def _port(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        value = -1
+    if not 1 <= value <= 65535:
+        raise argparse.ArgumentTypeError(f"--port must be a whole number from 1 to 65535 "
+                                         f"(e.g. 8001), got {text!r}")
     return value
 
 
@@ -52,7 +63,7 @@ def make_parser() -> argparse.ArgumentParser:
     p.add_argument("path", type=Path, help="new (or empty) project folder")
     p = sub.add_parser("preview", help="serve the site on localhost and rebuild on change")
     p.add_argument("project", type=Path, help="project folder (the one holding project.toml)")
-    p.add_argument("--port", type=int, default=8000)
+    p.add_argument("--port", type=_port, default=8000, help="port on 127.0.0.1 (default 8000)")
     p = sub.add_parser("keygen", help="make a person's signing keys and add them to project.toml")
     p.add_argument("--name", required=True)
     p.add_argument("--id", required=True, dest="person_id")
@@ -114,6 +125,27 @@ def _run(args) -> int:
     raise UsageError("no command given", fix="run 'calcsheaf --help' for the commands")
 
 
+# errno -> what to change, for faults of the file system rather than of calcsheaf.
+_OS_FIXES = {
+    errno.ENOSPC: "free space on that disk, or write elsewhere (e.g. --out on another disk)",
+    errno.EDQUOT: "free space within your disk quota, or write elsewhere (e.g. --out)",
+    errno.EROFS: "the file system is read-only: copy the project to a writable folder, or write "
+                 "elsewhere (e.g. --out)",
+    errno.EACCES: "give yourself write permission there (chmod/chown), or write elsewhere (e.g. --out)",
+    errno.EPERM: "give yourself write permission there (chmod/chown), or write elsewhere (e.g. --out)",
+    errno.ENAMETOOLONG: "use a shorter folder path",
+    errno.EMFILE: "raise the open-file limit (ulimit -n) or build with fewer --jobs",
+}
+
+
+def os_error_message(exc: OSError) -> str:
+    """One line for a file-system fault: the path, what the system said, and what to change."""
+    where = exc.filename if exc.filename is not None else "a file"
+    what = exc.strerror or type(exc).__name__
+    fix = _OS_FIXES.get(exc.errno, "check the path, its permissions and the free space, then rerun")
+    return f"{where}: {what} ({errno.errorcode.get(exc.errno, 'no errno')}). Fix: {fix}."
+
+
 def _terminate(signum, frame):
     raise KeyboardInterrupt
 
@@ -137,8 +169,11 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("calcsheaf: interrupted", file=sys.stderr)
         return 130
+    except OSError as exc:
+        print(f"calcsheaf: {os_error_message(exc)}", file=sys.stderr)
+        return 1
     except Exception as exc:  # a bug in calcsheaf itself: say so plainly, no traceback
-        if os.environ.get("CALCSHEAF_DEBUG"):
+        if settings.debug():
             raise
         print(f"calcsheaf: internal error ({type(exc).__name__}: {exc}). Nothing was published "
               "by this run. Fix: rerun with CALCSHEAF_DEBUG=1 for the traceback and report it.",

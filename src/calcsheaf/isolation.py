@@ -19,10 +19,11 @@ from typing import Callable
 
 import numpy as np
 
+from . import settings
 from .errors import AnalysisError, CalcsheafError
 
-TIME_LIMIT_S = float(os.environ.get("CALCSHEAF_CALC_TIME_LIMIT", "300"))
-MEMORY_LIMIT_BYTES = int(float(os.environ.get("CALCSHEAF_CALC_MEMORY_LIMIT_GB", "4")) * 2 ** 30)
+TIME_LIMIT_S = settings.time_limit_s()            # validated: a bad value is refused
+MEMORY_LIMIT_BYTES = settings.memory_limit_bytes()
 
 
 _stage_channel = None

@@ -10,6 +10,8 @@ import os
 from pathlib import Path
 from typing import Any
 
+from .. import settings
+
 
 def canonical_json(data: Any) -> bytes:
     """UTF-8 JSON with sorted keys and no spaces: the bytes that get signed."""
@@ -44,9 +46,9 @@ def unb64(text: str) -> bytes:
 
 def today() -> str:
     """ISO date (UTC) from SOURCE_DATE_EPOCH when set, else today's date."""
-    epoch = os.environ.get("SOURCE_DATE_EPOCH")
-    if epoch:
-        moment = _dt.datetime.fromtimestamp(int(epoch), tz=_dt.timezone.utc)
+    epoch = settings.source_date_epoch()
+    if epoch is not None:
+        moment = _dt.datetime.fromtimestamp(epoch, tz=_dt.timezone.utc)
     else:
         moment = _dt.datetime.now(tz=_dt.timezone.utc)
     return moment.date().isoformat()

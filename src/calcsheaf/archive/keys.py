@@ -26,6 +26,7 @@ from cryptography.hazmat.primitives.kdf.scrypt import Scrypt
 from cryptography.hazmat.primitives.serialization import pkcs12
 from cryptography.x509.oid import NameOID
 
+from calcsheaf import settings
 from calcsheaf.errors import ArchiveError
 
 from .canonical import b64, unb64, write_atomic
@@ -88,14 +89,7 @@ def key_path(person_id: str) -> Path:
 
 def kdf_log2n_from_env() -> int:
     """scrypt cost exponent: CALCSHEAF_KDF_LOG2N if set (>= MIN_LOG2N), else DEFAULT_LOG2N."""
-    text = os.environ.get("CALCSHEAF_KDF_LOG2N", "")
-    if not text:
-        return DEFAULT_LOG2N
-    value = int(text)
-    if value < MIN_LOG2N:
-        raise ArchiveError(f"CALCSHEAF_KDF_LOG2N={value} is below {MIN_LOG2N}",
-                           key="CALCSHEAF_KDF_LOG2N", fix=f"use {MIN_LOG2N} or more")
-    return value
+    return settings.kdf_log2n(DEFAULT_LOG2N, MIN_LOG2N)
 
 
 def self_signed_certificate(key: ec.EllipticCurvePrivateKey, name: str,

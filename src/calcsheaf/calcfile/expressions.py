@@ -13,10 +13,12 @@ import ast
 import cmath
 import difflib
 import math
+import unicodedata
 import warnings
 from dataclasses import dataclass, field
 
 import sympy as sp
+from sympy.core.function import AppliedUndef
 
 from ..errors import ExpressionError
 
@@ -138,6 +140,7 @@ def parse_expression(text, scope: Scope, where: Where = Where()) -> sp.Expr:
                      "split it into named outputs or parameters")
     if not text.strip():
         raise _error(where, "expression is empty", 'write an expression, or "0"')
+    check_characters(text, where)
     lead = len(text) - len(text.lstrip())
     try:
         with warnings.catch_warnings():        # e.g. "invalid decimal literal": the error says it
@@ -153,6 +156,78 @@ def parse_expression(text, scope: Scope, where: Where = Where()) -> sp.Expr:
                      "simplify it or split it into parameters") from None
     _check_size(tree, where)
     return _Converter(scope, where, text.strip(), lead).convert(tree.body, depth=0)
+
+
+# Look-alikes of operators typed by word processors and keyboards: what to write instead.
+_LOOKALIKES = {"\u2212": "-", "\u2013": "-", "\u2014": "-", "\u00d7": "*", "\u00b7": "*",
+               "\u22c5": "*", "\u2217": "*", "\u00f7": "/", "\u2044": "/", "\u00b2": "**2",
+               "\u00b3": "**3", "\u00a0": "a plain space"}
+
+
+def check_characters(text: str, where: Where = Where()) -> None:
+    """Refuse what the Python parser would read differently from what a checker sees.
+
+    '#' would start a comment (the rest of the text silently ignored, while the page
+    shows it); a non-ASCII character would be folded (NFKC: full-width 'ｍ' reads as 'm',
+    '²' as '2') or refused with a less helpful message.  Calc names are ASCII."""
+    for offset, char in enumerate(text, start=1):
+        if char == "#":
+            rest = text[offset - 1:].strip()
+            shown = rest if len(rest) <= 40 else rest[:37] + "..."
+            raise _error(where, f"'#' inside an expression would start a comment, so '{shown}' "
+                         f"would be ignored while the page shows it{_character(where, offset)}",
+                         "remove the '#' (and the text after it) from inside the quotes; "
+                         "a TOML comment goes after the closing quote",
+                         column=where.at(offset))
+        if not char.isascii():
+            raise _error(where, f"{describe_character(char)} is not allowed in an expression"
+                         f"{_character(where, offset)}", ascii_fix(char), column=where.at(offset))
+
+
+def describe_character(char: str) -> str:
+    """`character 'ｍ' (U+FF4D FULLWIDTH LATIN SMALL LETTER M)`."""
+    return f"character '{char}' (U+{ord(char):04X} {unicodedata.name(char, 'unnamed')})"
+
+
+def ascii_fix(char: str) -> str:
+    """What to type instead of the non-ASCII `char`."""
+    if char in _LOOKALIKES:
+        return f"write {_LOOKALIKES[char]} instead"
+    folded = unicodedata.normalize("NFKC", char)
+    if folded != char and folded.isascii() and folded.isprintable():
+        return f"type it as the plain ASCII '{folded}' (it looks alike but is another character)"
+    return ("write names in plain ASCII letters, digits and _ (e.g. theta for θ, omega_n for "
+            "ωₙ: they are shown as Greek letters) and operators as + - * / **")
+
+
+def check_with_values(expr: sp.Expr, values: dict[str, float], where: Where = Where()) -> None:
+    """Refuse a function or power of given values only (parameters, SI) that has no finite
+    real value, e.g. asin(L2/L) with L2 > L: sympy would keep it complex and a later
+    evaluation could drop the imaginary part without a word."""
+    known = {symbol(name): value for name, value in values.items()}
+    for node in sp.preorder_traversal(expr):
+        if not (isinstance(node, (sp.Function, sp.Pow)) and not isinstance(node, AppliedUndef)):
+            continue
+        if not node.free_symbols or not node.free_symbols <= set(known):
+            continue
+        value = _value(node.subs(known))
+        if cmath.isfinite(value) and abs(value.imag) <= 1e-12 * max(1.0, abs(value.real)):
+            continue
+        args = ", ".join(_short_number(_value(a.subs(known)).real) for a in node.args)
+        what = "not a finite number" if not cmath.isfinite(value) else "not a real number"
+        raise _error(where, f"'{node}' is {what} with the parameter values "
+                     f"({type(node).__name__.lower()} of {args})",
+                     "check the parameter values: asin and acos need arguments from -1 to 1, "
+                     "log and sqrt (or a fractional power) positive ones, and no denominator "
+                     "may be zero")
+
+
+def _value(expr: sp.Expr) -> complex:
+    """The numeric value of a closed expression; nan when it has none."""
+    try:
+        return complex(expr.evalf(15))
+    except (TypeError, ValueError, OverflowError):
+        return complex("nan")
 
 
 def _short_number(value: float) -> str:

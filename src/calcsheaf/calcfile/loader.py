@@ -17,7 +17,9 @@ import sympy as sp
 from ..errors import CalcsheafError, InputError, ProblemList
 from ..model import Assumption, Reference
 from . import spec as S
-from .expressions import RESERVED_NAMES, Scope, Where, parse_expression, query_name, velocity
+from .expressions import (RESERVED_NAMES, Scope, Where, check_with_values, parse_expression,
+                          query_name, velocity)
+from .names import display_forms
 from .text_links import local_targets
 from .toml_source import read_toml, value_column
 from .units import (DIMENSIONLESS, DimensionChecker, describe, parse_quantity, parse_unit,
@@ -91,6 +93,7 @@ class _CalcLoader:
         # declared names whose value or unit was refused: known to expressions, of any
         # dimension, so that one bad unit is reported once and not again at every use
         self.broken: set[str] = set()
+        self.values: dict[str, float] = {}     # parameter values, SI
 
     # ---- reporting ---------------------------------------------------------
     def where(self, key: str) -> Where:
@@ -171,6 +174,18 @@ class _CalcLoader:
             return default
         return value
 
+    def label(self, key: str, value) -> str:
+        """A plain-text label (plot legends, tables): '$' is refused, since the plot library
+        would read $...$ as math (and fail on what it cannot parse) while pages show it as typed."""
+        text = self.string(key, value, "") or ""
+        if "$" in text:
+            self.problem(key, f"label '{text}' contains '$', which the plot library reads as the "
+                         "start of a formula ($...$), while the pages show it as typed",
+                         "write the label as plain text without '$' (Unicode is fine, e.g. "
+                         "'angle θ, positive clockwise'); the symbol of the name is shown beside it")
+            return text.replace("$", "")
+        return text
+
     def markdown(self, key: str, value, default: str = "") -> str:
         """Markdown text; links and images to local files are refused (see text_links)."""
         text = self.string(key, value, default)
@@ -234,6 +249,13 @@ class _CalcLoader:
         if value in taken:
             self.problem(key, f"'{value}' is already defined at {taken[value]}", "choose a unique name")
             return None
+        twin = next((other for other in taken if _same_display(other, value)), None)
+        if twin is not None:
+            self.problem(key, f"'{value}' would be shown as the same symbol as '{twin}' ({taken[twin]}): "
+                         f"both display as {_same_display(twin, value)}",
+                         f"rename one of them so that each symbol stands for one quantity, "
+                         f"e.g. {value}_a or {twin}_b")
+            return None
         taken[value] = key
         return value
 
@@ -249,6 +271,7 @@ class _CalcLoader:
     def expr(self, key: str, text, scope: Scope, expected=None, what: str | None = None) -> sp.Expr:
         where = self.where(key)
         expression = parse_expression(text, scope, where)
+        check_with_values(expression, self.values, where)
         if expected is not None or what is not None:
             checker = DimensionChecker(self.dims, where)
             if expected is None:
@@ -379,7 +402,7 @@ class _CalcLoader:
             self.dims[f"ddot({name})"] = dim / ureg.second.dimensionality ** 2
             out.append(S.Coordinate(name=name, unit=row["unit"], si_unit=si_unit_text(dim),
                                     dimension=dim, factor=si_factor(unit),
-                                    label=self.string(f"{key}.label", row.get("label"), "")))
+                                    label=self.label(f"{key}.label", row.get("label"))))
         return tuple(out)
 
     def parameters(self, names: dict[str, str], ids: dict[str, str]) -> tuple[S.Parameter, ...]:
@@ -411,6 +434,7 @@ class _CalcLoader:
                 self.dims[name] = None
                 continue
             self.dims[name] = quantity.dimensionality
+            self.values[name] = to_si(quantity)
             out.append(S.Parameter(name=name, given=str(row["value"]), value=to_si(quantity),
                                    unit=si_unit_of(quantity),
                                    dimension=quantity.dimensionality, source=source,
@@ -485,7 +509,7 @@ class _CalcLoader:
             if None in pos or None in fvec:
                 continue
             out.append(S.PointForce(position=tuple(pos), force=tuple(fvec),
-                                    label=self.string(f"{key}.label", row.get("label"), "")))
+                                    label=self.label(f"{key}.label", row.get("label"))))
         return tuple(out)
 
     def constraints(self, params, coords, names):
@@ -511,7 +535,7 @@ class _CalcLoader:
                 continue
             out.append(S.Constraint(name=name, equation=equation, unit=unit_text,
                                     factor=si_factor(unit),
-                                    label=self.string(f"{key}.label", row.get("label"), "")))
+                                    label=self.label(f"{key}.label", row.get("label"))))
         return tuple(out)
 
     def _display_unit(self, key: str, text: str, expected):
@@ -627,8 +651,10 @@ class _CalcLoader:
             if expr is not None:
                 rows.append((name, expr, str(text)))
         hz = ureg.hertz.dimensionality
-        start = self.attempt(lambda: to_si(self.quantity("frequency_response.from", block["from"], hz, "from")))
-        stop = self.attempt(lambda: to_si(self.quantity("frequency_response.to", block["to"], hz, "to")))
+        start = self.attempt(lambda: to_si(self.quantity("frequency_response.from", block["from"], hz, "from"))) \
+            if "from" in block else None       # a missing key is reported by table()
+        stop = self.attempt(lambda: to_si(self.quantity("frequency_response.to", block["to"], hz, "to"))) \
+            if "to" in block else None
         points = self.number("frequency_response.points", block.get("points"), 400, integer=True)
         spacing = self.string("frequency_response.spacing", block.get("spacing"), "linear")
         if spacing not in ("linear", "log"):
@@ -656,7 +682,7 @@ class _CalcLoader:
             return None
         self.dims[name] = DIMENSIONLESS if dim is None else dim
         return S.NamedExpr(name=name, expr=expr, text=str(row["expr"]), unit=unit_text,
-                           factor=si_factor(unit), label=self.string(f"{key}.label", row.get("label"), ""))
+                           factor=si_factor(unit), label=self.label(f"{key}.label", row.get("label")))
 
     def outputs(self, params, coords, constraints, names):
         out = []
@@ -779,6 +805,12 @@ def _in_hertz(expr: sp.Expr) -> bool:
     if isinstance(expr, (sp.Add, sp.Abs, sp.Min, sp.Max)):
         return all(_in_hertz(a) for a in expr.args)
     return False
+def _same_display(a: str, b: str) -> str:
+    """The shared display of two calc names (LaTeX, else HTML as plain text), or ""."""
+    (latex_a, html_a), (latex_b, html_b) = display_forms(a), display_forms(b)
+    if latex_a == latex_b:
+        return latex_a
+    return re.sub(r"<[^>]+>", "", html_a) if html_a == html_b else ""
 
 
 def _toml_key(name: str) -> str:

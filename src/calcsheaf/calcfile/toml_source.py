@@ -19,6 +19,7 @@ _INLINE_KEY = re.compile(r"[{,]\s*" + _KEY + r"\s*=")
 _TOML_POSITION = re.compile(r"\(at line (\d+), column (\d+)\)")
 _TOML_END = "(at end of document)"
 MAX_FILE_BYTES = 1_000_000
+MAX_NESTING = 8             # levels of tables and arrays (a calc file needs 4)
 
 # tomllib's wording -> what to do about it; the first match wins.
 _SYNTAX_FIXES = (
@@ -96,7 +97,48 @@ def read_toml(path: Path) -> tuple[str, dict, dict[str, int]]:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise syntax_error(path, text, str(exc)) from None
-    return text, data, key_lines(text)
+    except RecursionError:
+        raise _too_deep(path, _deep_line(text), None) from None
+    lines = key_lines(text)
+    deep = _deepest_key(data)
+    if deep is not None:
+        probe = deep
+        while probe and probe not in lines:
+            probe = probe.rpartition(".")[0]
+        raise _too_deep(path, lines.get(probe), deep)
+    return text, data, lines
+
+
+def _too_deep(path: Path, line: int | None, key: str | None) -> InputError:
+    return InputError(f"nests arrays or tables more than {MAX_NESTING} levels deep", file=path,
+                      line=line, key=key, fix="flatten the value: a calc file needs at most a few "
+                                              "levels ([table], [[rows]], { inline tables })")
+
+
+def _deep_line(text: str) -> int | None:
+    """First line where brackets and braces (counted outside quotes, roughly) open deeper
+    than MAX_NESTING: where to look when the parser itself gave up."""
+    depth = 0
+    for number, line in enumerate(text.splitlines(), start=1):
+        for char in re.sub(r'"[^"]*"|\'[^\']*\'', "", line.split("#", 1)[0]):
+            depth += (char in "[{") - (char in "]}")
+            if depth > MAX_NESTING:
+                return number
+    return None
+
+
+def _deepest_key(data, path: str = "", depth: int = 0) -> str | None:
+    """Key path of the first value nested more than MAX_NESTING levels deep, else None."""
+    if depth > MAX_NESTING:
+        return path or "(top)"
+    items = data.items() if isinstance(data, dict) else \
+        enumerate(data, start=1) if isinstance(data, list) else ()
+    for name, value in items:
+        inner = f"{path}[{name}]" if isinstance(data, list) else (f"{path}.{name}" if path else str(name))
+        found = _deepest_key(value, inner, depth + 1)
+        if found is not None:
+            return found
+    return None
 
 
 def syntax_error(path: Path, text: str, message: str) -> InputError:

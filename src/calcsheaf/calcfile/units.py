@@ -15,7 +15,7 @@ import pint
 import sympy as sp
 
 from ..errors import DimensionError, UnitError
-from .expressions import Where, query_name
+from .expressions import Where, ascii_fix, describe_character, query_name
 
 ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=False)
 ureg.define("rpm = revolution / minute")
@@ -55,6 +55,7 @@ def parse_unit(text: str, where: Where = Where()) -> pint.Unit:
     """A pint unit from its text, e.g. 'kN', 'mm', '1' (dimensionless)."""
     if text in ("", "1", "-"):
         return ureg.dimensionless
+    _check_unit_characters(text, where)
     try:
         unit = ureg.Unit(text)
     except pint.errors.UndefinedUnitError as exc:
@@ -75,6 +76,23 @@ def parse_unit(text: str, where: Where = Where()) -> pint.Unit:
                         key=where.key, fix="write newton metres as N*m or kN*m (with the *); "
                                            "spell other units out")
     return unit
+
+
+_UNIT_SYMBOLS = frozenset("µμΩ°")     # the non-ASCII unit symbols pint reads as written
+
+
+def _check_unit_characters(text: str, where: Where) -> None:
+    """Refuse '#' (pint would read it as a comment and drop the rest) and characters that
+    would be folded or misread (full-width letters); µ, Ω and ° are kept."""
+    if "#" in text:
+        raise UnitError(f"'#' in the unit '{text}' would start a comment, so the text after it "
+                        "would be ignored", file=where.file, line=where.line, key=where.key,
+                        fix="remove the '#' and what follows from inside the quotes; a TOML "
+                            "comment goes after the closing quote")
+    odd = next((c for c in text if not c.isascii() and c not in _UNIT_SYMBOLS), None)
+    if odd is not None:
+        raise UnitError(f"{describe_character(odd)} is not allowed in the unit '{text}'",
+                        file=where.file, line=where.line, key=where.key, fix=ascii_fix(odd))
 
 
 # pint units whose short names catch everyday engineering abbreviations ("Nm", "kNm").

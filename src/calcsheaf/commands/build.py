@@ -22,8 +22,10 @@ from pathlib import Path
 
 from filelock import FileLock, Timeout
 
+from .. import settings
 from ..cache import Cache, key, tree_digest
 from ..errors import BuildError, InputError
+from ..outdir import MARKER, MARKER_TEXT, check_output_folder, is_leftover
 
 WATCHED = ("project.toml", "calcs", "signoffs", "issued", "templates")
 
@@ -38,6 +40,7 @@ def build(project_root: Path, out_dir: Path | None = None, jobs: int | None = No
                          fix="give the folder that holds project.toml, or make one with 'calcsheaf new PATH'")
     started = time.monotonic()
     target = Path(out_dir) if out_dir else root / "_site"
+    check_output_folder(target, root)
     with _locked(target):
         site_key = input_key(root, target)
         stamp = target.parent / f".{target.name}.key"
@@ -67,7 +70,7 @@ def _full_build(root: Path, target: Path, jobs, out, err) -> tuple[int, int, int
     package = PackageModel(project=project, calcs=[r for r, _ in entries], software=versions(),
                            build_date=date)
     files = publish.site_files(package, [f for _, f in entries], cached_selftest_files())
-    write_site(target, files)
+    write_site(target, files, root)
     failed = [r for r in package.calcs if not r.passed]
     for r in package.calcs:
         print(f"{'PASS' if r.passed else 'FAIL'}  {r.number:<10} {r.title}", file=out)
@@ -96,7 +99,7 @@ def _progress(out):
 
 def input_key(root: Path, target: Path) -> str:
     """SHA-256 over everything a build reads, plus the tool's code fingerprint."""
-    return key(str(target.resolve()), os.environ.get("SOURCE_DATE_EPOCH", ""),
+    return key(str(target.resolve()), str(settings.source_date_epoch() or ""),
                tree_digest(root, WATCHED))
 
 
@@ -141,24 +144,42 @@ class _locked:
         self.lock.release()
 
 
-def write_site(target: Path, files: dict[str, bytes]) -> None:
-    """Write `files` (relative path -> bytes) plus SHA256SUMS as the new `target`, atomically."""
+def write_site(target: Path, files: dict[str, bytes], project_root: Path | None = None) -> None:
+    """Write `files` (relative path -> bytes) plus the marker and SHA256SUMS as the new `target`,
+    atomically.  `target` must be new, empty or a calcsheaf output (see outdir); a failed
+    write (disk full, read-only folder) removes its temporary folder and leaves `target` as it was."""
+    check_output_folder(target, project_root)
     _clean_leftovers(target)
     temp = target.parent / f".{target.name}.tmp-{os.getpid()}"
-    temp.mkdir()
-    for rel in sorted(files):
-        path = temp / rel
-        path.parent.mkdir(parents=True, exist_ok=True)
-        path.write_bytes(files[rel])
-    (temp / "SHA256SUMS").write_bytes(sha256sums(files))
-    _fsync_tree(temp)
+    try:
+        temp.mkdir()
+        (temp / MARKER).write_bytes(MARKER_TEXT)      # first: a leftover is recognisably ours
+        for rel in sorted(files):
+            path = temp / rel
+            path.parent.mkdir(parents=True, exist_ok=True)
+            path.write_bytes(files[rel])
+        (temp / "SHA256SUMS").write_bytes(sha256sums({**files, MARKER: MARKER_TEXT}))
+        _fsync_tree(temp)
+    except BaseException:
+        shutil.rmtree(temp, ignore_errors=True)
+        raise
+    _swap_in(temp, target)
+
+
+def _swap_in(temp: Path, target: Path) -> None:
+    """Replace `target` by the complete folder `temp` (exchange, or two renames)."""
     if target.exists() and _exchange(temp, target):
         shutil.rmtree(temp)
         return
     if target.exists():
         old = target.parent / f".{target.name}.old-{os.getpid()}"
         os.rename(target, old)
-        os.rename(temp, target)
+        try:
+            os.rename(temp, target)
+        except OSError:                      # put the previous output back before reporting
+            os.rename(old, target)
+            shutil.rmtree(temp, ignore_errors=True)
+            raise
         shutil.rmtree(old)
     else:
         os.rename(temp, target)
@@ -171,9 +192,11 @@ def sha256sums(files: dict[str, bytes]) -> bytes:
 
 
 def _clean_leftovers(target: Path) -> None:
+    """Remove the temporary and old folders of interrupted writes (only folders marked as ours)."""
     for stale in sorted(target.parent.glob(f".{target.name}.tmp-*")) + \
             sorted(target.parent.glob(f".{target.name}.old-*")):
-        shutil.rmtree(stale, ignore_errors=True)
+        if is_leftover(stale):
+            shutil.rmtree(stale, ignore_errors=True)
 
 
 def _fsync_tree(folder: Path) -> None:

@@ -6,11 +6,11 @@ history are read from the project's records (archive), never computed here.
 
 from __future__ import annotations
 
-import os
 from dataclasses import replace
 from datetime import datetime, timezone
 from pathlib import Path
 
+from .. import settings
 from ..archive.revisions import revision_history
 from ..fingerprint import code_fingerprint
 from ..isolation import stage
@@ -24,10 +24,10 @@ from ..render.mathsvg import EquationImages
 
 def build_date() -> str:
     """ISO date from SOURCE_DATE_EPOCH, or "" (no wall-clock dates in the output)."""
-    epoch = os.environ.get("SOURCE_DATE_EPOCH")
-    if not epoch:
+    epoch = settings.source_date_epoch()
+    if epoch is None:
         return ""
-    return datetime.fromtimestamp(int(epoch), tz=timezone.utc).date().isoformat()
+    return datetime.fromtimestamp(epoch, tz=timezone.utc).date().isoformat()
 
 
 def with_status(report: CalcReport, project: ProjectInfo) -> tuple[CalcReport, list[dict], dict]:

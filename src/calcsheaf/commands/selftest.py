@@ -14,6 +14,7 @@ import sys
 from pathlib import Path
 
 from ..fingerprint import code_fingerprint
+from ..outdir import check_output_folder
 from ..render import pdf, theme
 from ..verification.selftest import SelftestReport, run_selftest
 
@@ -73,11 +74,12 @@ def selftest(out_dir: Path | None = None, out=None) -> int:
     from ..pipeline import analyse_paths
     from .build import write_site
 
+    target = Path(out_dir) if out_dir else Path("selftest-out")
+    check_output_folder(target)          # before the long run: refuse a folder we did not make
     report = run_selftest(analyse_paths)
     for o in report.outcomes:
         worst = max((x.relative_error for x in o.report.crosschecks), default=float("nan"))
         print(f"{'PASS' if o.passed else 'FAIL'}  {o.key:<24} largest relative error {worst:.1e}", file=out)
-    target = Path(out_dir) if out_dir else Path("selftest-out")
     write_site(target, selftest_files(report))
     print(f"{sum(o.passed for o in report.outcomes)} of {len(report.outcomes)} cases passed; "
           f"report at {target / FOLDER / 'index.html'}", file=out)
