@@ -66,10 +66,12 @@ def _full_build(root: Path, target: Path, jobs, out, err, sources, records) -> t
     from ..model import PackageModel
     from ..pipeline import build_calcs
     from ..project import load_project
+    from ..render.theme import limits
     from ..software import versions
     from . import publish
     from .selftest import cached_selftest_files
 
+    limits()                     # malformed template limits are refused before any work
     project = load_project(root)
     date = publish.build_date()
     cache = Cache(root)
