@@ -34,9 +34,12 @@ def analyse_calc_file(path: Path, project_toml: Path | None = None) -> m.CalcRep
     return analyse(load_calc(Path(path)))
 
 
-def failed_report(path: Path, error: CalcsheafError) -> m.CalcReport:
-    """The report of a calc that could not be loaded or derived at all."""
-    raw = path.read_bytes() if path.is_file() else b""
+def failed_report(path: Path, error: CalcsheafError, raw: bytes | None = None) -> m.CalcReport:
+    """The report of a calc that could not be loaded or derived at all.
+
+    `raw`: the bytes of the calc file as read for this command (None reads the file)."""
+    if raw is None:
+        raw = path.read_bytes() if path.is_file() else b""
     return m.CalcReport(number=path.stem, title="(calc file could not be read)", source_path=path,
                         source_text=raw.decode("utf-8", "replace"),
                         input_hash=hashlib.sha256(raw).hexdigest(), error=error)
@@ -77,7 +80,7 @@ def analyse(spec: CalcSpec) -> m.CalcReport:
 
 
 def _base_report(spec: CalcSpec) -> m.CalcReport:
-    raw = spec.path.read_bytes()
+    raw = spec.source_text.encode("utf-8")     # the bytes loaded (UTF-8 round-trips exactly)
     return m.CalcReport(
         number=spec.number, title=spec.title, source_path=spec.path, source_text=spec.source_text,
         input_hash=hashlib.sha256(raw).hexdigest(), revision=spec.revision, purpose=spec.purpose,

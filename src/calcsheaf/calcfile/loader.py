@@ -76,9 +76,13 @@ def _header(key: str) -> str:
     return f"[[{table.split('[')[0]}]]" if "[" in table else f"[{table}]"
 
 
-def load_calc(path: Path) -> S.CalcSpec:
-    """Read, validate and convert one calc file; raise ProblemList or InputError."""
-    text, data, lines = read_toml(path)
+def load_calc(path: Path, raw: bytes | None = None) -> S.CalcSpec:
+    """Validate and convert one calc file; raise ProblemList or InputError.
+
+    `raw`: the file's bytes as the caller already read them (then the file is not
+    read again, so what is hashed, analysed and cached is exactly these bytes);
+    None reads `path`."""
+    text, data, lines = read_toml(path, raw)
     return _CalcLoader(path, text, data, lines).load()
 
 
