@@ -14,6 +14,7 @@ from typing import Any, Callable
 
 import sympy as sp
 
+from .. import identifiers
 from ..errors import CalcsheafError, InputError, ProblemList
 from ..model import Assumption, Reference
 from . import spec as S
@@ -339,9 +340,9 @@ class _CalcLoader:
     def calc_block(self) -> dict:
         block = self.table("calc", self.data.get("calc"), *TABLE_KEYS["calc"])
         number = self.string("calc.number", block.get("number"))
-        if number is not None and not re.match(r"^[A-Za-z0-9][A-Za-z0-9._-]*$", number):
-            self.problem("calc.number", f"calc number '{number}' cannot name a folder",
-                         "use letters, digits, '.', '_' and '-', e.g. C-102")
+        bad_number = identifiers.problem("calc number", number) if number is not None else None
+        if bad_number:
+            self.problem("calc.number", bad_number, identifiers.fix("calc number"))
             number = None
         hazards = block.get("hazards", [])
         if not isinstance(hazards, list) or any(h not in HAZARDS for h in hazards):

@@ -11,8 +11,9 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from .. import settings
-from ..archive.revisions import revision_history
+from ..archive.revisions import issued_pdf, revision_history
 from ..cache import Cache, key as cache_key
+from ..identifiers import next_revision
 from ..isolation import stage
 from ..archive.signoffs import signoff_status
 from ..model import CalcReport, PackageModel, ProjectInfo
@@ -37,6 +38,8 @@ def with_status(report: CalcReport, project: ProjectInfo) -> tuple[CalcReport, l
     current = [h for h in history if h["content_hash"] == report.input_hash]
     if current:
         report = replace(report, status=current[-1]["status"], revision=current[-1]["rev"])
+    elif report.error is None:   # a draft: the revision it would become, from the records
+        report = replace(report, revision=next_revision(history[-1]["rev"] if history else None))
     return report, history, {k: v for k, v in signoff.items() if k != "records"}
 
 
@@ -91,6 +94,9 @@ def render_entry(report: CalcReport, project: ProjectInfo, date: str,
     report, history, signoff = with_status(report, project)
     files, _ = calc_files(report, project, date, equation_images(project, use_cache),
                           history=history, signoff=signoff)
+    if report.error is None and report.status != "draft":   # serve what was signed
+        files[site.calc_pdf_path(report.number)] = issued_pdf(project.root, report.number,
+                                                              report.revision)
     return report, files
 
 
