@@ -8,7 +8,6 @@ calc fails alone with a clear message, while the rest of the project builds.
 from __future__ import annotations
 
 import multiprocessing as mp
-import os
 import pickle
 import resource
 import signal
