@@ -153,6 +153,11 @@ expr = "2*pi*natural_frequency(1)"
 [[result]]
 name = "decay"
 expr = "ct/J"
+
+[[criterion]]
+name = "first mode above the drive"
+demand = "w/(2*pi)"
+capacity = "f1"
 """
 
 
@@ -203,6 +208,13 @@ def test_frequency_results_without_a_unit_are_hertz_not_per_second(torsion):
     assert units["f1"] == "Hz"
     assert units["w1"] == "rad/s"
     assert units["decay"] == "1/s"          # a rate, not a frequency
+    # a criterion whose capacity is a result in Hz is shown in Hz
+    (criterion,) = torsion.criteria
+    assert criterion.unit == "Hz"
+    # undamped natural frequency sqrt(kt/J)/(2 pi) of the closed form, drive w/(2 pi)
+    f_n = math.sqrt(TORSION["kt"] / TORSION["J"]) / (2 * math.pi)
+    assert criterion.capacity == pytest.approx(f_n, rel=1e-12)
+    assert criterion.demand == pytest.approx(10 / (2 * math.pi), rel=1e-12)
     values = {r.name: r.value for r in torsion.results}
     # undamped natural frequency sqrt(kt/J)/(2 pi), closed form
     assert values["w1"] == pytest.approx(2 * math.pi * values["f1"], rel=1e-12)

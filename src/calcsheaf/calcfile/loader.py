@@ -99,6 +99,8 @@ class _CalcLoader:
         # dimension, so that one bad unit is reported once and not again at every use
         self.broken: set[str] = set()
         self.values: dict[str, float] = {}     # parameter values, SI
+        # [[result]] names whose value is a frequency in Hz, for default units of later uses
+        self.hertz: set[str] = set()
 
     # ---- reporting ---------------------------------------------------------
     def where(self, key: str) -> Where:
@@ -679,13 +681,15 @@ class _CalcLoader:
         dim = DimensionChecker(self.dims, self.where(f"{key}.expr")).infer(expr)
         unit_text = self.string(f"{key}.unit", row.get("unit"), None)
         if unit_text is None:
-            unit_text = _frequency_unit(expr) if dim == ureg.hertz.dimensionality else None
+            unit_text = _frequency_unit(expr, self.hertz) if dim == ureg.hertz.dimensionality else None
             unit_text = unit_text or si_unit_text(dim)
         unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text,
                                                        DIMENSIONLESS if dim is None else dim))
         if unit is None:
             return None
         self.dims[name] = DIMENSIONLESS if dim is None else dim
+        if unit_text == "Hz":
+            self.hertz.add(name)
         return S.NamedExpr(name=name, expr=expr, text=str(row["expr"]), unit=unit_text,
                            factor=si_factor(unit), label=self.label(f"{key}.label", row.get("label")))
 
@@ -744,7 +748,9 @@ class _CalcLoader:
                              "compare quantities of the same kind")
                 continue
             dim = dd if dd is not None else (dc if dc is not None else DIMENSIONLESS)
-            unit_text = self.string(f"{key}.unit", row.get("unit"), si_unit_text(dim))
+            hertz = dim == ureg.hertz.dimensionality and (
+                _frequency_unit(demand, self.hertz) or _frequency_unit(capacity, self.hertz)) == "Hz"
+            unit_text = self.string(f"{key}.unit", row.get("unit"), "Hz" if hertz else si_unit_text(dim))
             unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text, dim))
             if unit is None:
                 continue
@@ -785,20 +791,23 @@ def _force_unit(dim) -> str:
     return "N*m" if dim == ureg.joule.dimensionality else si_unit_text(dim)
 
 
-def _frequency_unit(expr: sp.Expr) -> str | None:
-    """Default unit of a result that is a frequency: "Hz" for a frequency query
-    (natural_frequency, damped_frequency, frf_peak_frequency) or 1/period(q), alone, scaled
-    by a plain number, summed, differenced or through abs/min/max; "rad/s" for 2*pi times
-    such a frequency; None when the expression is not recognisably one (then SI, 1/s)."""
+def _frequency_unit(expr: sp.Expr, hertz: set[str] = frozenset()) -> str | None:
+    """Default unit of a value that is a frequency: "Hz" for a frequency query
+    (natural_frequency, damped_frequency, frf_peak_frequency), 1/period(q) or a result in
+    `hertz`, alone, scaled by a plain number, summed, differenced or through abs/min/max;
+    "rad/s" for 2*pi times such a frequency; None when the expression is not recognisably
+    one (then the SI unit, 1/s)."""
     if isinstance(expr, sp.Mul):
         numbers = sp.Mul(*[a for a in expr.args if a.is_number])
         rest = sp.Mul(*[a for a in expr.args if not a.is_number])
-        if _in_hertz(rest) and numbers.has(sp.pi):
+        if _in_hertz(rest, hertz) and numbers.has(sp.pi):
             return "rad/s" if (numbers / (2 * sp.pi)).is_rational else None
-    return "Hz" if _in_hertz(expr) else None
+    return "Hz" if _in_hertz(expr, hertz) else None
 
 
-def _in_hertz(expr: sp.Expr) -> bool:
+def _in_hertz(expr: sp.Expr, hertz) -> bool:
+    if isinstance(expr, sp.Symbol):
+        return expr.name in hertz
     if query_name(expr.func) in _HERTZ_QUERIES:
         return True
     if isinstance(expr, sp.Pow) and expr.exp == -1:
@@ -806,10 +815,12 @@ def _in_hertz(expr: sp.Expr) -> bool:
     if isinstance(expr, sp.Mul):
         numbers = [a for a in expr.args if a.is_number]
         rest = [a for a in expr.args if not a.is_number]
-        return len(rest) == 1 and not any(a.has(sp.pi) for a in numbers) and _in_hertz(rest[0])
+        return len(rest) == 1 and not any(a.has(sp.pi) for a in numbers) and _in_hertz(rest[0], hertz)
     if isinstance(expr, (sp.Add, sp.Abs, sp.Min, sp.Max)):
-        return all(_in_hertz(a) for a in expr.args)
+        return all(_in_hertz(a, hertz) for a in expr.args)
     return False
+
+
 def _same_display(a: str, b: str) -> str:
     """The shared display of two calc names (LaTeX, else HTML as plain text), or ""."""
     (latex_a, html_a), (latex_b, html_b) = display_forms(a), display_forms(b)
