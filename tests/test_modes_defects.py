@@ -98,6 +98,9 @@ def test_driven_hoop_keeps_the_prescribed_rate_and_finds_the_relative_equilibriu
     assert report.modes[0].kind == "oscillatory"
     assert report.linearisation.velocities == pytest.approx((0.0, W))
     assert "prescribe" in check(report, "equilibrium")[0].detail
+    state = json.loads(json.dumps(results_dict(report)))["equilibrium_state"]
+    assert state["kind"] == "steady motion" and state["time_s"] == 0.0
+    assert state["velocities"] == {"phi": {"value": pytest.approx(W), "unit": "rad/s"}}
 
 
 def test_hoop_written_with_the_rate_in_T_gives_the_same_answer(tmp_path):
