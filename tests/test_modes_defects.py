@@ -98,6 +98,9 @@ def test_driven_hoop_keeps_the_prescribed_rate_and_finds_the_relative_equilibriu
     assert report.modes[0].kind == "oscillatory"
     assert report.linearisation.velocities == pytest.approx((0.0, W))
     assert "prescribe" in check(report, "equilibrium")[0].detail
+    state = json.loads(json.dumps(results_dict(report)))["equilibrium_state"]
+    assert state["kind"] == "steady motion" and state["time_s"] == 0.0
+    assert state["velocities"] == {"phi": {"value": pytest.approx(W), "unit": "rad/s"}}
 
 
 def test_hoop_written_with_the_rate_in_T_gives_the_same_answer(tmp_path):
@@ -562,3 +565,24 @@ def test_steady_drive_without_a_relative_equilibrium_is_refused(tmp_path):
     assert "no steady motion (relative equilibrium) was found" in failed[0].detail
     assert "dot(s) = 0.5 (SI)" in failed[0].detail and "equilibrium = false" in failed[0].detail
     assert report.equilibrium is None
+
+
+def test_driven_hoop_period_from_the_nonlinear_history_matches_the_mode(tmp_path):
+    """Independent of the linearisation: integrate the full equations from θ_eq + 1 mrad with
+    φ̇ = Ω and measure period(th) about the relative equilibrium; it must equal 2π/(Ω sin θ_eq)
+    (same reference as above; the amplitude correction is O(1e-6) at 1 mrad)."""
+    R, W = HOOP["R"], HOOP["Omega"]
+    th_eq = math.acos(G / (R * W * W))
+    text = hoop_calc(th0=th_eq + 1e-3) + textwrap.dedent("""
+    [time_history]
+    duration = "4 s"
+    points = 400
+
+    [[result]]
+    name = "P"
+    expr = "period(th)"
+    unit = "s"
+    """)
+    report = report_of(tmp_path, text)
+    assert report.passed, [c for c in report.checks if not c.passed]
+    assert result(report, "P") == pytest.approx(2 * math.pi / (W * math.sin(th_eq)), rel=1e-5)

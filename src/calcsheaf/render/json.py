@@ -92,7 +92,6 @@ def _mode(m) -> dict:
             "natural_frequency_rad_s": _num(m.natural_frequency_rad_s),
             "damping_ratio": _num(m.damping_ratio), "damped_frequency_hz": _num(m.damped_frequency_hz),
             "shape": {k: _num(v) for k, v in m.shape.items()},
-            "roots_per_s": [{"re": _num(re), "im": _num(im)} for re, im in m.roots],
             "growth_rate_per_s": _num(m.growth_rate_per_s), "doubling_time_s": _num(m.doubling_time_s),
             "shape_complex": m.shape_magnitude is not None,
             "shape_magnitude": None if m.shape_magnitude is None
