@@ -11,7 +11,7 @@ from dataclasses import replace
 from datetime import datetime, timezone
 from pathlib import Path
 
-from ..archive.revisions import issued_pdf, revision_history
+from ..archive.revisions import issued_changes, issued_pdf, revision_history
 from ..fingerprint import code_fingerprint
 from ..identifiers import next_revision
 from ..isolation import stage
@@ -45,10 +45,13 @@ def with_status(report: CalcReport, project: ProjectInfo) -> tuple[CalcReport, l
 
 def calc_files(report: CalcReport, project: ProjectInfo, date: str, images: EquationImages, *,
                history: list[dict] | None = None, signoff: dict | None = None,
-               folder: str | None = None) -> tuple[dict[str, bytes], html.CalcPage]:
-    """One calc's page, PDF, results.json and assets, keyed by site-root path."""
-    changes = None
-    if history and report.status == "draft" and report.error is None:
+               folder: str | None = None,
+               changes: dict | None = None) -> tuple[dict[str, bytes], html.CalcPage]:
+    """One calc's page, PDF, results.json and assets, keyed by site-root path.
+
+    `changes`: what changed since the previous issue, as an issued revision's signed pages
+    show it; for a draft it is worked out here from the latest issued revision."""
+    if changes is None and history and report.status == "draft" and report.error is None:
         changes = changes_since_issue(project.root, report.number, report.source_text,
                                       results_dict(report, project))
     page = html.render_calc(report, project, build_date=date, revisions=history, signoff=signoff,
@@ -75,9 +78,11 @@ def render_entry(report: CalcReport, project: ProjectInfo, date: str) -> tuple[C
     """The report with its issue status, and its site files."""
     stage("render")
     report, history, signoff = with_status(report, project)
+    issued = report.error is None and report.status != "draft"
+    changes = issued_changes(project.root, report.number, report.revision) if issued else None
     files, _ = calc_files(report, project, date, equation_images(project), history=history,
-                          signoff=signoff)
-    if report.error is None and report.status != "draft":   # serve what was signed
+                          signoff=signoff, changes=changes)
+    if issued:   # serve what was signed
         files[site.calc_pdf_path(report.number)] = issued_pdf(project.root, report.number,
                                                               report.revision)
     return report, files
