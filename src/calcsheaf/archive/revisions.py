@@ -223,6 +223,10 @@ def _unlock_both(listed: dict, status: dict, unlock: Unlock) -> dict[str, Person
     keys = {}
     for role in ROLES:
         person_id = status[role]["id"]
+        named = status["records"][role]["statement"].get("name")
+        if person_id not in listed or named != listed[person_id]["name"]:
+            raise ArchiveError("project.toml changed while issuing", key="person",
+                               fix="issue again once editing has stopped")
         unlocked = unlock(person_id)
         if unlocked.public_key_b64 != listed[person_id]["public_key"]:
             raise ArchiveError(f"the key on this machine for '{person_id}' is not the one listed "
