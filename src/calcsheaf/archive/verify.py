@@ -482,7 +482,10 @@ def trusted_keys(path: Path, trust: dict | None) -> str:
         found, _ = _load_people(folder)
         for who in (found or {}).values():
             people[who["id"]] = fingerprint(who)
-    listed = ", ".join(f"{pid} {fp}" for pid, fp in sorted(people.items())) or "none"
+    if not folders:
+        return ("trusted: no keys (no issued revision here); a site's SHA256SUMS shows only "
+                "that its files are the ones listed")
+    listed = ", ".join(f"{pid} {fp}" for pid, fp in sorted(people.items())) or "none readable"
     return ("trusted: keys as listed in project.toml, as frozen in each revision "
             f"(fingerprints {listed}); give --trust KEYRING to check them against keys the "
             "firm keeps outside the project")
