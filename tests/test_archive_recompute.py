@@ -120,3 +120,32 @@ def test_recompute_catches_results_of_other_inputs(signed_project, tiny_pdf):
     failures = {item: detail for item, ok, detail in
                 verify_revision(folder, recompute=recompute_revision) if not ok}
     assert "results.f1.value" in failures["recompute results"]
+
+
+def test_recompute_re_renders_and_catches_replaced_equation_images(signed_project, monkeypatch):
+    """A revision whose signed PDF carries equation images other than the ones its inputs
+    give (as a poisoned cache once put there) fails verify --recompute on the PDF, while its
+    hashes and signatures alone verify."""
+    from calcsheaf.commands.issue import render_frozen
+    from calcsheaf.render import mathsvg
+
+    planted = b'<svg xmlns="http://www.w3.org/2000/svg" width="60" height="12"><text>X</text></svg>'
+    with monkeypatch.context() as patch:
+        patch.setattr(mathsvg, "draw", lambda eq: planted)   # every image drawn is replaced
+        folder = revisions.issue(signed_project, "C-7", "A", render=render_frozen)
+    assert [r for r in verify_revision(folder) if not r[1]] == []
+    failures = {item: detail for item, ok, detail in
+                verify_revision(folder, recompute=recompute_revision) if not ok}
+    assert list(failures) == ["recompute output/C-7.pdf"]
+    assert failures["recompute output/C-7.pdf"].startswith(
+        "differs from a fresh rendering from the frozen inputs (issued with calcsheaf")
+
+
+def test_recompute_runs_under_the_build_limits(signed_project, tiny_pdf, monkeypatch):
+    from calcsheaf import isolation
+    folder = revisions.issue(signed_project, "C-7", "A", render=analysed_render(tiny_pdf))
+    monkeypatch.setattr(isolation, "TIME_LIMIT_S", 0.0)
+    failures = {item: detail for item, ok, detail in
+                verify_revision(folder, recompute=recompute_revision) if not ok}
+    assert failures == {"recompute": "re-running the calc failed: the analysis exceeded its "
+                                     "time limit of 0 s and was stopped"}

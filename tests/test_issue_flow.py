@@ -103,7 +103,8 @@ def test_issued_pdf_site_and_revisions_tell_one_story(tmp_path, people_env, caps
     assert "superseded" in printed and "Heavier mass" in printed and "For comment" in printed
     assert "Changes since revision A" in printed and "Revision B" in printed
     page = (project / "_site" / "C-1" / "index.html").read_text()
-    assert "superseded" in page and "Heavier mass" in page
+    assert "superseded" in page and "Heavier mass" in page and "For comment" in page
+    assert "Changes since revision A" in page and "Revision B" in page
 
     (project / "calcs" / "a.toml").write_text(tiny("C-1", 14.0))
     assert main(["build", str(project)]) == 0

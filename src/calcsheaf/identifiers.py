@@ -58,18 +58,6 @@ def check(kind: str, text, *, key: str = "", file=None, line: int | None = None)
     return text
 
 
-def calc_number(text, **where) -> str:
-    return check("calc number", text, **where)
-
-
-def person_id(text, **where) -> str:
-    return check("person id", text, **where)
-
-
-def revision(text, **where) -> str:
-    return check("revision", text, **where)
-
-
 _SEGMENT = re.compile(r"[A-Za-z]+|[0-9]+|[^A-Za-z0-9]+")
 
 

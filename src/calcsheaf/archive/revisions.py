@@ -133,19 +133,42 @@ def revision_history(project_root: Path, calc_number: str) -> list[dict]:
     return history
 
 
-def issued_pdf(project_root: Path, calc_number: str, revision: str) -> bytes:
-    """The signed PDF of an issued revision, refused unless it matches its manifest."""
+def issued_file(project_root: Path, calc_number: str, revision: str, rel: str) -> bytes | None:
+    """A file of an issued revision, refused unless it matches its manifest; None when the
+    manifest lists no such file."""
     folder = revision_folder(project_root, calc_number, revision)
     _, manifest = _manifests(project_root, calc_number)[revision]
-    rel = f"output/{calc_number}.pdf"
+    if rel not in manifest["files"]:
+        return None
     path = folder / rel
-    data = path.read_bytes() if path.is_file() else b""
-    if manifest["files"].get(rel) != sha256_bytes(data):
-        raise ArchiveError("the signed PDF of this issued revision is missing or does not match "
-                           "its manifest", file=path,
+    data = path.read_bytes() if path.is_file() and not path.is_symlink() else b""
+    if manifest["files"][rel] != sha256_bytes(data):
+        raise ArchiveError("this file of an issued revision is missing or does not match its "
+                           "manifest", file=path,
                            fix=f"run `calcsheaf verify {folder}` and restore the revision from "
                                "the archive")
     return data
+
+
+def issued_pdf(project_root: Path, calc_number: str, revision: str) -> bytes:
+    """The signed PDF of an issued revision (checked against its manifest)."""
+    data = issued_file(project_root, calc_number, revision, f"output/{calc_number}.pdf")
+    if data is None:
+        raise ArchiveError("the issued revision lists no signed PDF",
+                           file=revision_folder(project_root, calc_number, revision),
+                           fix="run `calcsheaf verify` on it and restore it from the archive")
+    return data
+
+
+def issued_changes(project_root: Path, calc_number: str, revision: str) -> dict | None:
+    """The changes since the previous issue that the revision's signed pages show (from its
+    output/render.json), or None when it shows none or predates render.json."""
+    data = issued_file(project_root, calc_number, revision, "output/render.json")
+    try:
+        changes = json.loads(data).get("changes") if data else None
+    except (ValueError, AttributeError):
+        changes = None
+    return changes if isinstance(changes, dict) else None
 
 
 def latest_revision(project_root: Path, calc_number: str) -> str | None:
@@ -200,6 +223,10 @@ def _unlock_both(listed: dict, status: dict, unlock: Unlock) -> dict[str, Person
     keys = {}
     for role in ROLES:
         person_id = status[role]["id"]
+        named = status["records"][role]["statement"].get("name")
+        if person_id not in listed or named != listed[person_id]["name"]:
+            raise ArchiveError("project.toml changed while issuing", key="person",
+                               fix="issue again once editing has stopped")
         unlocked = unlock(person_id)
         if unlocked.public_key_b64 != listed[person_id]["public_key"]:
             raise ArchiveError(f"the key on this machine for '{person_id}' is not the one listed "

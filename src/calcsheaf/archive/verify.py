@@ -404,10 +404,11 @@ def check_project_revisions(project_root: Path, calc_number: str, *,
     if focus in names:
         revs = revs[: names.index(focus) + 1]
     rows = []
-    if revs and revs[0][2].get("supersedes"):
-        rows.append((f"revision {revs[0][0]} is the first", False,
-                     f"it names {revs[0][2]['supersedes'].get('revision')} as superseded, which "
-                     "is not issued: a revision was removed"))
+    if revs:
+        link = revs[0][2].get("supersedes")
+        rows.append((f"revision {revs[0][0]} is the first", not link,
+                     f"it names {link.get('revision')} as superseded, which is not issued: a "
+                     "revision was removed" if link else "it supersedes nothing"))
     for previous, current in zip(revs, revs[1:]):
         link = current[2].get("supersedes") or {}
         ok = link.get("revision") == previous[0] and link.get(
@@ -481,7 +482,10 @@ def trusted_keys(path: Path, trust: dict | None) -> str:
         found, _ = _load_people(folder)
         for who in (found or {}).values():
             people[who["id"]] = fingerprint(who)
-    listed = ", ".join(f"{pid} {fp}" for pid, fp in sorted(people.items())) or "none"
+    if not folders:
+        return ("trusted: no keys (no issued revision here); a site's SHA256SUMS shows only "
+                "that its files are the ones listed")
+    listed = ", ".join(f"{pid} {fp}" for pid, fp in sorted(people.items())) or "none readable"
     return ("trusted: keys as listed in project.toml, as frozen in each revision "
             f"(fingerprints {listed}); give --trust KEYRING to check them against keys the "
             "firm keeps outside the project")

@@ -237,9 +237,3 @@ def _exchange(a: Path, b: Path) -> bool:
         return False
     AT_FDCWD, RENAME_EXCHANGE = -100, 2
     return renameat2(AT_FDCWD, os.fsencode(a), AT_FDCWD, os.fsencode(b), RENAME_EXCHANGE) == 0
-
-
-def build_calc(*args, **kwargs):
-    """One calc's files into a folder (for `issue`); see publish.build_calc."""
-    from .publish import build_calc as write_calc
-    return write_calc(*args, **kwargs)

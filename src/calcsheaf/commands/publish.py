@@ -8,10 +8,9 @@ from __future__ import annotations
 
 from dataclasses import replace
 from datetime import datetime, timezone
-from pathlib import Path
 
 from .. import settings
-from ..archive.revisions import issued_pdf, revision_history
+from ..archive.revisions import issued_changes, issued_pdf, revision_history
 from ..cache import Cache, key as cache_key
 from ..identifiers import next_revision
 from ..isolation import stage
@@ -45,10 +44,13 @@ def with_status(report: CalcReport, project: ProjectInfo) -> tuple[CalcReport, l
 
 def calc_files(report: CalcReport, project: ProjectInfo, date: str, images: EquationImages, *,
                history: list[dict] | None = None, signoff: dict | None = None,
-               folder: str | None = None) -> tuple[dict[str, bytes], html.CalcPage]:
-    """One calc's page, PDF, results.json and assets, keyed by site-root path."""
-    changes = None
-    if history and report.status == "draft" and report.error is None:
+               folder: str | None = None,
+               changes: dict | None = None) -> tuple[dict[str, bytes], html.CalcPage]:
+    """One calc's page, PDF, results.json and assets, keyed by site-root path.
+
+    `changes`: what changed since the previous issue, as an issued revision's signed pages
+    show it; for a draft it is worked out here from the latest issued revision."""
+    if changes is None and history and report.status == "draft" and report.error is None:
         changes = changes_since_issue(project.root, report.number, report.source_text,
                                       results_dict(report, project))
     page = html.render_calc(report, project, build_date=date, revisions=history, signoff=signoff,
@@ -92,9 +94,11 @@ def render_entry(report: CalcReport, project: ProjectInfo, date: str,
     """The report with its issue status, and its site files."""
     stage("render")
     report, history, signoff = with_status(report, project)
+    issued = report.error is None and report.status != "draft"
+    changes = issued_changes(project.root, report.number, report.revision) if issued else None
     files, _ = calc_files(report, project, date, equation_images(project, use_cache),
-                          history=history, signoff=signoff)
-    if report.error is None and report.status != "draft":   # serve what was signed
+                          history=history, signoff=signoff, changes=changes)
+    if issued:   # serve what was signed
         files[site.calc_pdf_path(report.number)] = issued_pdf(project.root, report.number,
                                                               report.revision)
     return report, files
@@ -120,60 +124,3 @@ def site_files(package: PackageModel, calc_files_list: list[dict[str, bytes]],
     files[site.project_pdf_path(package.project.number)] = pdf.project_pdf(package, calc_pdfs, attachments)
     files.update(selftest or {})
     return files
-
-
-def build_calc(project_root: Path, calc_number: str, out_dir: Path, *, status: str, revision: str,
-               signoff: dict, calc_file: Path | None = None, source: bytes | None = None,
-               use_cache: bool = False) -> Path:
-    """Write one calc's page, PDF and results.json into `out_dir` (used by `issue`).
-
-    The calc is analysed afresh under the build's time and memory limits and, unless
-    `use_cache`, rendered without reading or writing the project's cache (equation
-    images included), so nothing the project folder holds besides its inputs reaches
-    the output.  `calc_file` + `source`: analyse exactly these bytes (read once by
-    the caller, e.g. the bytes being frozen) as that file; otherwise every calc file
-    is read once until the one numbered `calc_number` is found.
-    """
-    from ..project import load_project
-
-    project = load_project(project_root)
-    report = fresh_report(project_root, calc_number, calc_file, source)
-    report = replace(report, status=status, revision=revision)
-    history = revision_history(project.root, calc_number)
-    files, _ = calc_files(report, project, build_date(), equation_images(project, use_cache),
-                          history=history, signoff=signoff)
-    out_dir = Path(out_dir)
-    prefix = site.calc_dir(calc_number) + "/"
-    page = site.calc_page_path(calc_number)
-    # A frozen calc folder stands alone: the theme's files go inside it.
-    files[page] = files[page].replace(b'href="../static/', b'href="static/')
-    files.update(html.site_static(project))
-    for rel, data in sorted(files.items()):
-        local = rel[len(prefix):] if rel.startswith(prefix) else rel
-        path = out_dir / local
-        path.parent.mkdir(parents=True, exist_ok=True)
-        path.write_bytes(data)
-    return out_dir
-
-
-def fresh_report(project_root: Path, calc_number: str, calc_file: Path | None = None,
-                 source: bytes | None = None) -> CalcReport:
-    """The report of calc `calc_number`, analysed now in a limited process (never cached).
-
-    `calc_file` (+ its bytes `source`, else read once now) names the file; without it
-    the project's calc files are searched.  A calc of another number is refused."""
-    from ..errors import InputError
-    from ..pipeline import CalcSource, analyse_sources, read_source, read_sources
-
-    if calc_file is not None:
-        candidates = [CalcSource(Path(calc_file), source) if source is not None
-                      else read_source(Path(calc_file))]
-    else:
-        candidates = read_sources(project_root)
-    for candidate in candidates:
-        report, = analyse_sources([candidate], jobs=1)
-        if report.number == calc_number:
-            return report
-    where = calc_file if calc_file is not None else Path(project_root) / "calcs"
-    raise InputError(f"no calc numbered '{calc_number}'", file=where,
-                     fix="give the calc number from its [calc] number key")

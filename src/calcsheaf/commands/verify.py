@@ -58,9 +58,8 @@ def recompute_revision(folder: Path, manifest: dict) -> dict:
                 "note": f"the revision has no {RENDER_RECORD} (issued by an older calcsheaf): "
                         "only results.json was recomputed"}
     files, _ = render_isolated(calc_file, folder / "inputs", context)
-    files[RENDER_RECORD] = record.read_bytes()
     return {"results": json.loads(files["results.json"]), "files": files,
-            "note": "results, page, PDF and theme files rendered afresh"}
+            "note": f"results, page, PDF and theme files rendered afresh from {RENDER_RECORD}"}
 
 
 def _render_context(record: Path, manifest: dict) -> dict | None:
