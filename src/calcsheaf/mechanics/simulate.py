@@ -7,6 +7,12 @@ integration is data: status, message and evaluation count.  When the primary
 run fails, the second run is given at most SECOND_RUN_BUDGET times the
 primary's evaluations: enough to show whether another family gets through
 (stiff equations), without grinding on towards a blow-up.
+
+The second run is evaluated on the comparison grid (the samples, every step of
+the primary with points inside, and POINTS_PER_PERIOD per period of the
+fastest frequency seen) and compared there with the primary's dense output.
+With Coulomb terms sign(s) both runs go through sliding and stuck phases
+(mechanics.stickslip), one solve_ivp per phase, ended by located events.
 """
 
 from __future__ import annotations
