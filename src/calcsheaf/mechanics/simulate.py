@@ -37,6 +37,7 @@ MIN_BUDGET = 10_000
 POINTS_PER_PERIOD = 20            # comparison grid: points per period of the fastest frequency seen
 STEP_SUBDIVISIONS = 4             # comparison and extremes grid: parts of each primary step
 MAX_UNIFORM = 200_000             # cap on the uniform part of the comparison grid
+MAX_FINE = 400_000                # cap on the step grid with points inside steps
 MAX_PHASES = 20_000               # stick-slip phases at most before the run is stopped as chattering
 
 
@@ -261,10 +262,12 @@ def step_grid(first: Run, samples: np.ndarray) -> np.ndarray:
     """The samples, every step of the primary integrator and STEP_SUBDIVISIONS − 1 points inside each.
 
     The integrator's steps follow the fastest dynamics it met (short steps
-    through an impact), so this grid sees what happens between samples.
+    through an impact), so this grid sees what happens between samples.  Above
+    MAX_FINE points only the step ends are kept.
     """
     ts = np.asarray(first.dense.ts, dtype=float)
-    inner = ts[:-1, None] + np.diff(ts)[:, None] * (np.arange(1, STEP_SUBDIVISIONS) / STEP_SUBDIVISIONS)
+    parts = STEP_SUBDIVISIONS if len(ts) * STEP_SUBDIVISIONS <= MAX_FINE else 1
+    inner = ts[:-1, None] + np.diff(ts)[:, None] * (np.arange(1, parts) / parts)
     return np.unique(np.concatenate([samples, ts, inner.ravel()]))
 
 
