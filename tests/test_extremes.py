@@ -215,3 +215,91 @@ def test_jump_between_grid_points_is_taken_at_its_switching_time():
     found = extremes(t, np.array([value(s) for s in t]), value, times)
     assert found.max == pytest.approx(1.0, abs=1e-8)
     assert found.t_max == pytest.approx(t1, abs=1e-8)
+
+
+def test_peak_beyond_the_neighbour_bound_of_another_peak_is_refined():
+    """Two crests: one sampled at its top (1.0), a higher one (1.05) between samples.
+
+    The higher crest's samples are 0.82 and 0.73; only the larger of its rises
+    (0.82 above its far neighbour) says it could beat 1.0.  Gaussian crests
+    exp(−d²/0.01) at t = 0 and 1.05·exp(−(t − 1)²/0.01) (overlap below 1e-40).
+    """
+    def value(s):
+        return math.exp(-s * s / 0.01) + 1.05 * math.exp(-(s - 1) ** 2 / 0.01)
+
+    t = np.array([-0.5, 0.0, 0.5, 0.95, 1.06, 1.5])
+    found = extremes(t, np.array([value(s) for s in t]), value)
+    assert found.max == pytest.approx(1.05, rel=1e-12)
+    assert found.t_max == pytest.approx(1.0, abs=1e-6)
+
+
+def test_jump_that_no_grid_point_shows_is_found_at_its_switching_time():
+    """After the jump at t1 the value drops within 10 ms and only then rises slowly.
+
+    No grid value shows the top of the jump and no local maximum of the grid
+    could reach it: only the one-sided value at the switching time does.
+    """
+    t1, tau = 0.4321, 0.01
+
+    def value(s):
+        if s < t1:
+            return 0.0
+        return 1.0 - 0.5 * (1.0 - math.exp(-(s - t1) / tau)) + 0.2 * (s - t1)
+
+    t = np.linspace(0.0, 1.0, 5)
+    times = switching_times(t, [t - t1], lambda j, s: s - t1)
+    found = extremes(t, np.array([value(s) for s in t]), value, times)
+    assert found.max == pytest.approx(1.0, abs=1e-6)
+    assert found.t_max == pytest.approx(t1, abs=1e-8)
+    assert extremes(t, np.array([value(s) for s in t]), value).max < 0.7     # without the switch
+
+
+def test_short_pulse_written_with_step_is_caught_between_samples(tmp_path):
+    """Output k x + F0 step(t − t1) e^(−(t − t1)/τ) with τ = 1 ms and samples every 5 ms.
+
+    Reference: the undamped oscillator x = x0 cos(ω t), ω = sqrt(k/m), so the
+    peak is k x0 cos(ω t1) + F0 (t1 chosen where the spring force is near its top).
+    """
+    m, k, x0, F0, t1 = 1.0, 100.0, 0.1, 50.0, 2 * math.pi / 10.0
+    report = report_of(tmp_path, f"""
+    [calc]
+    number = "X-3"
+    title = "pulse on a spring-mass"
+
+    [parameters]
+    m = "{m} kg"
+    k = "{k} N/m"
+    F0 = "{F0} N"
+    t1 = "{t1} s"
+    tau = "1 ms"
+
+    [coordinates]
+    x = {{ unit = "m" }}
+
+    [energy]
+    kinetic = "m/2*dot(x)**2"
+    potential = "k/2*x**2"
+
+    [initial]
+    x = "{x0} m"
+    "dot(x)" = "0 m/s"
+
+    [time_history]
+    duration = "2 s"
+    points = 401
+
+    [[output]]
+    name = "F_tot"
+    expr = "k*x + F0*step(t - t1)*exp(-(t - t1)/tau)"
+    unit = "N"
+
+    [[result]]
+    name = "F_max"
+    expr = "max(F_tot)"
+    unit = "N"
+    """)
+    assert report.error is None
+    expected = k * x0 * math.cos(math.sqrt(k / m) * t1) + F0
+    assert result(report, "F_max") == pytest.approx(expected, rel=1e-6)
+    sampled = next(s for s in report.time_history.series if s.name == "F_tot").values
+    assert float(np.max(sampled)) < 0.5 * expected
