@@ -26,7 +26,7 @@ from .mechanics.lagrange import derive
 from .software import versions
 from .verification.checks import judge_criteria, run_crosschecks
 from .verification.lagrange_check import equations_check
-from .verification.queries import History, QueryContext, output_gains
+from .verification.queries import Friction, History, QueryContext, friction_values, output_gains
 
 
 def analyse_calc_file(path: Path, project_toml: Path | None = None) -> m.CalcReport:
@@ -256,7 +256,8 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
     th = spec.time_history
     powers = simulate.power_functions(derivation, ctx.params)
     first, second, grid = simulate.integrate(system, th, np.concatenate([q0, qd0]), powers,
-                                             linear_hz=_highest_linear_hz(ctx))
+                                             linear_hz=_highest_linear_hz(ctx),
+                                             plan=simulate.stick_slip(derivation, ctx.params))
     for run, role in ((first, "primary"), (second, "independent")):
         s = run.solver
         detail = f"status {s.status}: {s.message}; {s.nfev} evaluations"
@@ -275,10 +276,13 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
     Q, QD = Y[:n], Y[n:2 * n]
     QDD = np.zeros_like(Q)
     LAM = np.zeros((system.m, len(t)))
+    accelerations = first.accelerations or system.accelerations
     for k in range(len(t)):
-        QDD[:, k], LAM[:, k] = system.accelerations(t[k], Q[:, k], QD[:, k])
+        QDD[:, k], LAM[:, k] = accelerations(t[k], Q[:, k], QD[:, k])
+    friction = Friction(first.terms, first.sigma) if first.sigma is not None else None
     ctx.history = History(t=t, Q=Q, QD=QD, QDD=QDD, LAM=LAM, dense=first.dense,
-                          grid=simulate.step_grid(first, t))
+                          grid=simulate.step_grid(first, t), accelerations=accelerations,
+                          friction=friction, SIG=friction_values(friction, t, Q, QD))
     agreement = simulate.agreement(first, second, n) if second.solver.success else float("nan")
     if second.solver.success:
         checks.append(m.Check("integrators", "two integrators agree", agreement <= th.agreement_tolerance,
@@ -304,7 +308,8 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
                                         agreement_tolerance=th.agreement_tolerance,
                                         constraint_drift=drift, comparison_points=len(grid.t),
                                         fastest_hz=grid.fastest_hz, fastest_basis=grid.basis,
-                                        sampling_note=note)
+                                        sampling_note=note,
+                                        phases=tuple((p.t0, p.t1, _phase_label(p.mode)) for p in first.phases))
     report.energy = audit(derivation, ctx.params, t, Q, QD, QDD, LAM, Y[2 * n], Y[2 * n + 1],
                           spec.analysis.energy_tolerance, state=first.dense)
     checks.append(m.Check("energy", "energy audit", report.energy.passed,
@@ -315,6 +320,11 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
         for i, c in enumerate(spec.constraints))
     if any(not np.isfinite([s.peak, s.max, s.min]).all() for s in report.outputs):
         checks.append(m.Check("outputs", "outputs finite", False, "an output is not finite"))
+
+
+def _phase_label(mode) -> str:
+    """'stuck' when any Coulomb term holds, else 'sliding'."""
+    return "stuck" if simulate.STUCK in mode else "sliding"
 
 
 def _highest_linear_hz(ctx) -> float:

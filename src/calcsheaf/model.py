@@ -190,6 +190,7 @@ class TimeHistory:
     fastest_hz: float = float("nan")  # fastest frequency seen (linearised or observed), Hz
     fastest_basis: str = ""           # "linearised" or "observed"
     sampling_note: str = ""           # non-empty when the samples are coarse against the motion
+    phases: tuple[tuple[float, float, str], ...] = ()   # Coulomb friction: (t0 s, t1 s, "sliding"/"stuck")
 
 
 @dataclass(frozen=True)

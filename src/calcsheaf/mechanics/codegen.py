@@ -20,11 +20,12 @@ import sympy as sp
 
 from ..calcfile.expressions import TIME, symbol
 from .lagrange import Derivation, diff_ae
+from .safe_forms import overflow_safe
 
 
 def numeric(expr, params: dict[str, float]):
-    """`expr` with every parameter replaced by its SI value."""
-    return expr.xreplace({symbol(k): sp.Float(v) for k, v in params.items()})
+    """`expr` with every parameter replaced by its SI value, in a form that cannot overflow (safe_forms)."""
+    return overflow_safe(expr.xreplace({symbol(k): sp.Float(v) for k, v in params.items()}))
 
 
 class NumericSystem:

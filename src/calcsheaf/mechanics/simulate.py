@@ -7,11 +7,18 @@ integration is data: status, message and evaluation count.  When the primary
 run fails, the second run is given at most SECOND_RUN_BUDGET times the
 primary's evaluations: enough to show whether another family gets through
 (stiff equations), without grinding on towards a blow-up.
+
+The second run is evaluated on the comparison grid (the samples, every step of
+the primary with points inside, and POINTS_PER_PERIOD per period of the
+fastest frequency seen) and compared there with the primary's dense output.
+With Coulomb terms sign(s) both runs go through sliding and stuck phases
+(mechanics.stickslip), one solve_ivp per phase, ended by located events.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 import sympy as sp
@@ -22,6 +29,7 @@ from ..calcfile.spec import TimeHistorySpec
 from ..model import SolverRun
 from .codegen import NumericSystem, numeric
 from .lagrange import Derivation
+from .stickslip import STUCK, Phase, StickSlip, affine_in, slip_terms
 
 
 SECOND_RUN_BUDGET = 2
@@ -29,6 +37,8 @@ MIN_BUDGET = 10_000
 POINTS_PER_PERIOD = 20            # comparison grid: points per period of the fastest frequency seen
 STEP_SUBDIVISIONS = 4             # comparison and extremes grid: parts of each primary step
 MAX_UNIFORM = 200_000             # cap on the uniform part of the comparison grid
+MAX_FINE = 400_000                # cap on the step grid with points inside steps
+MAX_PHASES = 20_000               # stick-slip phases at most before the run is stopped as chattering
 
 
 class _RhsFailure(Exception):
@@ -40,7 +50,37 @@ class Run:
     solver: SolverRun
     t: np.ndarray
     y: np.ndarray                 # (states, N); empty when the run failed
-    dense: object = None          # OdeSolution of the primary run
+    dense: object = None          # OdeSolution (or PiecewiseSolution) of the primary run
+    accelerations: Callable | None = None   # (t, q, q̇) -> q̈, λ in the run's stick-slip phase
+    phases: tuple = ()            # stickslip.Phase of a run with Coulomb friction
+    sigma: Callable | None = None   # (t, q, q̇) -> σ of each Coulomb term in the run's phase
+    terms: tuple = ()             # the Coulomb terms sign(s_j) that σ stands for
+
+
+class PiecewiseSolution:
+    """The dense solutions of consecutive phases as one function of time (like OdeSolution)."""
+
+    def __init__(self, phases) -> None:
+        self.phases = tuple(phases)
+        self._starts = np.array([p.t0 for p in self.phases])
+        self.ts = np.unique(np.concatenate([np.asarray(p.solution.ts) for p in self.phases]))
+
+    def _index(self, t: np.ndarray) -> np.ndarray:
+        return np.clip(np.searchsorted(self._starts, t, side="right") - 1, 0, len(self.phases) - 1)
+
+    def __call__(self, t):
+        tt = np.atleast_1d(np.asarray(t, dtype=float))
+        idx = self._index(tt)
+        out = None
+        for k in np.unique(idx):
+            part = np.asarray(self.phases[k].solution(tt[idx == k])).reshape(-1, int(np.sum(idx == k)))
+            if out is None:
+                out = np.empty((part.shape[0], len(tt)))
+            out[:, idx == k] = part
+        return out[:, 0] if np.ndim(t) == 0 else out
+
+    def mode_at(self, t: float) -> tuple[int, ...]:
+        return self.phases[int(self._index(np.array([t]))[0])].mode
 
 
 def power_functions(derivation: Derivation, params: dict[str, float]):
@@ -56,13 +96,15 @@ def power_functions(derivation: Derivation, params: dict[str, float]):
 
 
 def integrate(system: NumericSystem, spec: TimeHistorySpec, y0: np.ndarray, powers,
-              linear_hz: float = 0.0) -> tuple[Run, Run, Grid]:
+              linear_hz: float = 0.0, plan: StickSlip | None = None) -> tuple[Run, Run, Grid]:
     """Primary (DOP853 with energy integrals) and secondary runs over [0, duration].
 
     The primary run is stored at the user's samples with its dense output; the
     secondary run is evaluated on the comparison grid (see `comparison_grid`),
     which `agreement` compares with the primary's dense output.
-    `linear_hz` is the highest linearised frequency (0 when unknown).
+    `linear_hz` is the highest linearised frequency (0 when unknown).  With a
+    stick-slip `plan` (Coulomb friction) both runs go through sliding and stuck
+    phases located by events.
     """
     t_eval = np.linspace(0.0, spec.duration, spec.points)
     n = system.n
@@ -83,14 +125,128 @@ def integrate(system: NumericSystem, spec: TimeHistorySpec, y0: np.ndarray, powe
         return out
 
     atol = _atol(y0, spec.atol)
-    first = _run("DOP853", primary_rhs, np.concatenate([y0, [0.0, 0.0]]), t_eval, spec,
-                 np.concatenate([atol, [spec.atol, spec.atol]]), dense=True)
+    energy_atol = np.concatenate([atol, [spec.atol, spec.atol]])
+    if plan is None:
+        first = _run("DOP853", primary_rhs, np.concatenate([y0, [0.0, 0.0]]), t_eval, spec,
+                     energy_atol, dense=True)
+    else:
+        first = _phased_run("DOP853", plan, np.concatenate([y0, [0.0, 0.0]]), t_eval, spec, energy_atol,
+                            energy=True)
     grid = comparison_grid(first, t_eval, n, linear_hz) if first.solver.success else Grid(t_eval, 0.0, "", False)
     budget = None if first.solver.success else max(SECOND_RUN_BUDGET * first.solver.nfev, MIN_BUDGET)
     # The multistep check runs 100 times tighter: its error constant is larger.
-    second = _run(spec.second_method, secondary_rhs, y0, grid.t, spec, atol, dense=False, tighten=1e-2,
-                  budget=budget)
+    if plan is None:
+        second = _run(spec.second_method, secondary_rhs, y0, grid.t, spec, atol, dense=False, tighten=1e-2,
+                      budget=budget)
+    else:
+        second = _phased_run(spec.second_method, plan, y0, grid.t, spec, atol, energy=False, tighten=1e-2,
+                             budget=budget)
     return first, second, grid
+
+
+def stick_slip(derivation: Derivation, params: dict[str, float]) -> StickSlip | None:
+    """The stick-slip treatment of the calc's Coulomb terms, or None when it has none (or not affine)."""
+    terms = slip_terms(derivation)
+    if not terms:
+        return None
+    plan = StickSlip(derivation, params, terms)
+    return plan if affine_in(terms, derivation, plan.sigma) else None
+
+
+def _phased_run(method, plan: StickSlip, y0, t_eval, spec: TimeHistorySpec, atol, energy: bool,
+                tighten: float = 1.0, budget: int | None = None) -> Run:
+    """A run through sliding and stuck phases (see mechanics.stickslip), one solve_ivp per phase.
+
+    Each phase ends at an event (a slip velocity reaching zero, a stuck
+    term's friction reaching its limit); the mode is then chosen afresh.
+    """
+    n = plan.n
+    counter = {"nfev": 0}
+    rtol, atol = max(spec.rtol * tighten, 1e-13), atol * tighten
+    rest = np.full(len(plan.terms), float(np.max(atol[n:2 * n])))
+    t0, y = 0.0, np.asarray(y0, dtype=float).copy()
+    phases: list[Phase] = []
+    try:
+        mode = _safe(plan.initial_mode, 0.0, y[:n], y[n:2 * n], rest)
+        for j in range(len(mode)):
+            y = plan.stick(y, mode, j)
+        while True:
+            rhs = _phase_rhs(plan, mode, energy, counter, budget)
+            events, outcomes = _phase_events(plan, mode)
+            sol = solve_ivp(rhs, (t0, spec.duration), y, method=method, rtol=rtol, atol=atol,
+                            dense_output=True, events=events or None)
+            if not sol.success:
+                solver = SolverRun(method, False, int(sol.status), str(sol.message), counter["nfev"])
+                return Run(solver, t_eval, np.zeros((len(y0), 0)))
+            t1 = float(sol.t[-1])
+            if t1 > t0:
+                phases.append(Phase(t0, t1, mode, sol.sol))
+            if sol.status == 0 or t1 >= spec.duration:
+                break
+            if len(phases) >= MAX_PHASES:
+                raise _RhsFailure(f"stopped at t = {t1:.6g} s after {MAX_PHASES} stick-slip phases "
+                                  "(friction chattering between sticking and sliding)")
+            k = next(i for i, te in enumerate(sol.t_events) if len(te))
+            j, new = outcomes[k]
+            y = sol.y[:, -1].copy()
+            if new is None:
+                new = _safe(plan.mode_at_rest, t1, y[:n], y[n:2 * n], mode, j)
+            mode = tuple(new if i == j else v for i, v in enumerate(mode))
+            y, t0 = plan.stick(y, mode, j), t1
+    except _RhsFailure as exc:
+        return Run(SolverRun(method, False, -1, str(exc), counter["nfev"]), t_eval, np.zeros((len(y0), 0)))
+    dense = PiecewiseSolution(phases)
+    stuck = sum(STUCK in p.mode for p in phases)
+    solver = SolverRun(method, True, 0, f"The solver successfully reached the end of the integration "
+                       f"interval in {len(phases)} stick-slip phase(s), {stuck} with friction stuck.",
+                       counter["nfev"])
+    accelerations = lambda t, q, qd: plan.accelerations(t, q, qd, dense.mode_at(t))
+    sigma = lambda t, q, qd: plan.sigma_of(t, q, qd, dense.mode_at(t))
+    return Run(solver, np.asarray(t_eval, dtype=float), dense(t_eval), dense, accelerations, tuple(phases),
+               sigma, plan.terms)
+
+
+def _phase_rhs(plan: StickSlip, mode, energy: bool, counter, budget):
+    """y' in one phase: [q̇, q̈] (and the two powers when `energy`)."""
+    n = plan.n
+
+    def rhs(t, y):
+        if budget is not None and counter["nfev"] >= budget:
+            raise _RhsFailure(f"stopped at t = {t:.6g} s after {budget} evaluations, the budget "
+                              "of the independent run once the primary run has failed")
+        counter["nfev"] += 1
+        q, qd = y[:n], y[n:2 * n]
+        sigma = _safe(plan.sigma_of, t, q, qd, mode)
+        qdd, lam = _safe(plan.solve, t, q, qd, sigma)
+        parts = [qd, qdd]
+        if energy:
+            parts.append(_safe(plan.powers, t, q, qd, lam, sigma))
+        out = np.concatenate(parts)
+        if not np.all(np.isfinite(out)):
+            raise _RhsFailure(f"non-finite acceleration or power at t = {t:.6g} s")
+        return out
+    return rhs
+
+
+def _phase_events(plan: StickSlip, mode):
+    """Terminal events of a phase and, for each, (term, new mode or None = decide at rest)."""
+    n = plan.n
+    events, outcomes = [], []
+    for j, state in enumerate(mode):
+        if state != STUCK:
+            def slip(t, y, j=j):
+                return plan.slip(t, y[:n], y[n:2 * n])[j]
+            slip.terminal, slip.direction = True, -state
+            events.append(slip)
+            outcomes.append((j, None))
+            continue
+        for limit in (1.0, -1.0):
+            def breakaway(t, y, j=j, limit=limit):
+                return plan.sigma_of(t, y[:n], y[n:2 * n], mode)[j] - limit
+            breakaway.terminal, breakaway.direction = True, limit
+            events.append(breakaway)
+            outcomes.append((j, int(limit)))
+    return events, outcomes
 
 
 @dataclass(frozen=True)
@@ -106,10 +262,12 @@ def step_grid(first: Run, samples: np.ndarray) -> np.ndarray:
     """The samples, every step of the primary integrator and STEP_SUBDIVISIONS − 1 points inside each.
 
     The integrator's steps follow the fastest dynamics it met (short steps
-    through an impact), so this grid sees what happens between samples.
+    through an impact), so this grid sees what happens between samples.  Above
+    MAX_FINE points only the step ends are kept.
     """
     ts = np.asarray(first.dense.ts, dtype=float)
-    inner = ts[:-1, None] + np.diff(ts)[:, None] * (np.arange(1, STEP_SUBDIVISIONS) / STEP_SUBDIVISIONS)
+    parts = STEP_SUBDIVISIONS if len(ts) * STEP_SUBDIVISIONS <= MAX_FINE else 1
+    inner = ts[:-1, None] + np.diff(ts)[:, None] * (np.arange(1, parts) / parts)
     return np.unique(np.concatenate([samples, ts, inner.ravel()]))
 
 

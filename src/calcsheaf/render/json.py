@@ -49,6 +49,8 @@ def results_dict(report: CalcReport, project: ProjectInfo | None = None) -> dict
                        for r in report.results}
     data["outputs"] = {o.name: {"peak": _num(o.peak), "max": _num(o.max), "min": _num(o.min),
                                 "unit": o.unit, "label": o.label} for o in report.outputs}
+    for o in report.outputs:                  # when the extremes occur, s (dense solution)
+        data["outputs"][o.name].update(t_peak_s=_num(o.t_peak), t_max_s=_num(o.t_max), t_min_s=_num(o.t_min))
     if report.frequency_response is not None:
         data["frequency_response"] = _frequency_response(report.frequency_response)
     if report.energy is not None:
@@ -64,6 +66,10 @@ def results_dict(report: CalcReport, project: ProjectInfo | None = None) -> dict
                              "message": s.message, "nfev": s.nfev} for s in (th.primary, th.secondary)],
             "agreement": _num(th.agreement), "agreement_tolerance": th.agreement_tolerance,
             "constraint_drift": _num(th.constraint_drift)}
+        data["time_history"].update(
+            comparison_points=th.comparison_points, fastest_hz=_num(th.fastest_hz),
+            fastest_basis=th.fastest_basis, sampling_note=th.sampling_note,
+            phases=[{"from_s": _num(a), "to_s": _num(b), "friction": kind} for a, b, kind in th.phases])
     data["criteria"] = [{"name": c.name, "demand": _num(c.demand), "capacity": _num(c.capacity),
                          "unit": c.unit, "ratio": _num(c.ratio), "pass": c.passed,
                          "reference": c.reference, "demand_expr": c.demand_expr,

@@ -10,7 +10,8 @@ dense output, at any time.  Candidates for its maximum are
   value could exceed the best grid value: for a smooth peak between grid
   points the excess over the highest grid point is at most the larger
   difference to its neighbours (a parabola through three points);
-- both one-sided values at every switching time, where the argument of a
+- both one-sided limits at every switching time (extrapolated from two points
+  just beside it), where the argument of a
   step, sign, abs, min or max in the quantity or in the equations of motion
   changes sign (located with brentq), because a jump or a kink can carry the
   extreme.
@@ -26,7 +27,7 @@ from typing import Callable
 import numpy as np
 from scipy import optimize
 
-ONE_SIDED = 1e-9                  # one-sided values at t_s ± ONE_SIDED·(record length)
+ONE_SIDED = 1e-9                  # one-sided limits from t_s ± (1, 2)·ONE_SIDED·(record length)
 MAX_REFINED = 200                 # local maxima refined at most, highest bound first
 
 
@@ -74,10 +75,11 @@ def extremes(t: np.ndarray, values: np.ndarray, value_at: Callable[[float], floa
     side = ONE_SIDED * span
     extra_t, extra_v = [], []
     for ts in switches:
-        for s in (ts - side, ts + side):
-            if t[0] <= s <= t[-1]:
-                extra_t.append(s)
-                extra_v.append(value_at(s))
+        for h in (-side, side):
+            if t[0] <= ts + 2 * h <= t[-1]:
+                # The one-sided limit, extrapolated linearly from ts + h and ts + 2h.
+                extra_t.append(ts + h)
+                extra_v.append(2 * value_at(ts + h) - value_at(ts + 2 * h))
     all_t = np.concatenate([t, extra_t])
     all_v = np.concatenate([values, extra_v])
     t_max, v_max = _refined_max(t, values, value_at, all_t, all_v)

@@ -9,6 +9,7 @@ frequencies in Hz, times in s, mode numbers 1-based.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from types import SimpleNamespace
 from typing import Any
 
 import numpy as np
@@ -36,6 +37,16 @@ class History:
     LAM: np.ndarray
     dense: Any = None             # OdeSolution of [q, q̇, ...]
     grid: np.ndarray | None = None   # times at which the dense solution is examined (extremes)
+    accelerations: Any = None     # (t, q, q̇) -> q̈, λ along this motion (stick-slip phases)
+    friction: Any = None          # Friction of a stick-slip run, else None
+    SIG: np.ndarray | None = None   # (terms, N) values σ_j standing for the Coulomb terms sign(s_j)
+
+
+@dataclass(frozen=True)
+class Friction:
+    """The Coulomb terms sign(s_j) of a stick-slip run and σ_j(t, q, q̇) along it (±1 sliding, |σ| ≤ 1 stuck)."""
+    terms: tuple
+    sigma: Any
 
 
 @dataclass
@@ -130,9 +141,12 @@ class QueryContext:
         y = np.asarray(self.history.dense(times), dtype=float).reshape(-1, len(times))
         Q, QD = y[:n], y[n:2 * n]
         QDD, LAM = np.zeros_like(Q), np.zeros((m, len(times)))
+        accelerations = self.history.accelerations or self.system.accelerations
         for k, tk in enumerate(times):
-            QDD[:, k], LAM[:, k] = self.system.accelerations(float(tk), Q[:, k], QD[:, k])
-        return History(t=np.asarray(times, dtype=float), Q=Q, QD=QD, QDD=QDD, LAM=LAM)
+            QDD[:, k], LAM[:, k] = accelerations(float(tk), Q[:, k], QD[:, k])
+        friction = self.history.friction
+        return History(t=np.asarray(times, dtype=float), Q=Q, QD=QD, QDD=QDD, LAM=LAM, friction=friction,
+                       SIG=friction_values(friction, times, Q, QD))
 
     def fine(self) -> History:
         """The motion on the history's fine grid (the samples when there is no dense solution)."""
@@ -144,14 +158,31 @@ class QueryContext:
         return self._fine
 
     def series(self, expr: sp.Expr, history: History | None = None) -> np.ndarray:
-        """Values of a time-history expression at the history's samples."""
+        """Values of a time-history expression at the history's samples.
+
+        In a stick-slip run each Coulomb term sign(s_j) reads σ_j, so a friction
+        force written with sign() shows the holding force while stuck.
+        """
         h = history or self.history
-        return self._function(expr)(h.t, h.Q, h.QD, h.QDD, h.LAM)
+        fn, with_sigma = self._function(expr)
+        LAM = np.vstack([h.LAM, h.SIG]) if with_sigma else h.LAM
+        return fn(h.t, h.Q, h.QD, h.QDD, LAM)
 
     def _function(self, expr: sp.Expr):
-        """The vectorised series function of an expression (outputs substituted), generated once."""
+        """(vectorised series function, reads σ) of an expression (outputs substituted), generated once."""
         if expr not in self._functions:
-            self._functions[expr] = series_function(self._expanded(expr), self.derivation, self.params)
+            full = self._expanded(expr)
+            friction = self.history.friction if self.history is not None else None
+            terms = [t for t in (friction.terms if friction else ()) if full.has(t)]
+            if terms:
+                d = self.derivation
+                sigma = [sp.Dummy(f"sigma{j}", real=True) for j in range(len(friction.terms))]
+                full = full.xreplace(dict(zip(friction.terms, sigma)))
+                # σ_j ride along as extra multipliers: the series function's last arguments.
+                carrier = SimpleNamespace(q=d.q, qd=d.qd, qdd=d.qdd, lambdas=(*d.lambdas, *sigma))
+                self._functions[expr] = (series_function(full, carrier, self.params), True)
+            else:
+                self._functions[expr] = (series_function(full, self.derivation, self.params), False)
         return self._functions[expr]
 
     def extremes(self, expr: sp.Expr) -> Extremes:
@@ -307,6 +338,14 @@ def output_gains(ctx: QueryContext, name: str):
     for group in (d.q, d.qd, d.qdd):
         values.append(np.array([float(numeric(diff_ae(expr, s), {**ctx.params, **at})) for s in group]))
     return tuple(values)
+
+
+def friction_values(friction: Friction | None, times, Q, QD) -> np.ndarray | None:
+    """σ_j of every Coulomb term at each time, (terms, N); None without stick-slip."""
+    if friction is None:
+        return None
+    return np.array([friction.sigma(float(tk), Q[:, k], QD[:, k]) for k, tk in enumerate(times)],
+                    dtype=float).reshape(len(times), len(friction.terms)).T
 
 
 def switch_arguments(expr: sp.Expr, derivation) -> list[sp.Expr]:
