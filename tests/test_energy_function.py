@@ -119,16 +119,38 @@ def test_time_switches_are_the_step_and_sign_arguments_of_t_alone(tmp_path):
     found = time_switches(d, spec.parameter_values)
     # step(t − 1/Ω) and sign(t − 1/Ω) switch at t = 1/3 s; step(r − bΩ t) depends on r: not counted.
     assert len(found) == 1
-    assert switch_times(found[0], 1.0) == [pytest.approx(1 / W, rel=1e-15)]
+    assert [s.t for s in switch_times(found[0], 1.0)] == [pytest.approx(1 / W, abs=2e-12)]
 
 
 def test_switch_times_include_exact_zeros_and_the_ends():
     t = TIME
-    assert switch_times(t, 2.0) == [0.0]
-    assert switch_times(t - 2, 2.0) == [2.0]
-    assert switch_times(t - sp.Float(0.5), 2.0) == [0.5]
+    step = 2.0 / 20_000
+    start, = switch_times(t, 2.0)
+    assert (start.t, start.lo, start.hi, start.before, start.after) == (0.0, 0.0, step, -1, 1)
+    end, = switch_times(2 - t, 2.0)
+    assert (end.t, end.lo, end.hi, end.before, end.after) == (2.0, 2.0 - step, 2.0, 1, -1)
+    middle, = switch_times(t - sp.Float(0.5), 2.0)
+    assert (middle.t, middle.before, middle.after) == (0.5, -1, 1)
+    assert middle.hi - middle.lo == pytest.approx(2 * step)
+    touch, = switch_times((t - 1) ** 2, 2.0)          # touches zero without crossing
+    assert (touch.t, touch.before, touch.after) == (1.0, 1, 1)
     assert switch_times(t + 1, 2.0) == []
-    assert switch_times((t - 1) ** 2 + 1, 2.0) == []
+
+
+def test_many_switches_are_all_found():
+    # sign(sin 2π·60 t) over 1 s: 120 zeros in (0, 1) besides t = 0 (the 120th, at 1 s, lies
+    # within round-off of the end); every zero is found.
+    switches = switch_times(sp.sin(2 * sp.pi * 60 * TIME), 1.0)
+    assert len(switches) in (120, 121)
+    np.testing.assert_allclose([s.t for s in switches][:120], np.arange(120) / 120, atol=2e-12)
+
+
+def test_a_switch_argument_undefined_at_the_start_raises_no_warning():
+    import warnings
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        switches = switch_times(sp.log(TIME) - sp.log(sp.Float(0.25)), 1.0)
+    assert [s.t for s in switches] == [pytest.approx(0.25, abs=2e-12)]
 
 
 def history(d, p, t, x, v, a):
