@@ -214,3 +214,55 @@ def test_audit_of_a_step_load_counts_minus_delta_L(tmp_path):
     np.testing.assert_allclose(e.work_in, [0.0, 0.0, -0.25, -0.5, -0.5], atol=1e-15)
     np.testing.assert_allclose(e.residual, 0.0, atol=1e-15)
     assert e.passed
+
+
+# Each term of the audit's energy scale made the largest in turn.  With q = r only
+# (s held at 0), m = 2 kg, F = 5 N, b = 0.4 m:
+#  T dominant: ṙ = 1 m/s held, r = 0.1 m held: T = 1 J, V and h constant; W_d = 0.01 t.
+#  V dominant: T = m/2 ṙ² + F/2 (r − b/2), V = F r, r from 0 to b at rest: h = 2.5 r + 0.5,
+#              ptp V = 2 J, ptp h = 1 J, max |T| = 0.5 J, residual h − h0 up to 1 J.
+#  h dominant: T = m/2 ṙ² − F/2 (r − b/2): h = 7.5 r − 0.5, ptp h = 3 J, ptp V = 2 J.
+#  W_d dominant: at rest, W_d = 0.05 t, W_in = 0.01 t.
+SCALES = [
+    ("T", "m/2*dot(r)**2", "k/2*(r**2 + s**2)", "still", 1.0, 0.01, 0.0, 0.01 / 1.0),
+    ("V", "m/2*dot(r)**2 + F/2*(r - b/2)", "F*r", "ramp", 0.0, 0.0, 0.0, 1.0 / 2.0),
+    ("h", "m/2*dot(r)**2 - F/2*(r - b/2)", "F*r", "ramp", 0.0, 0.0, 0.0, 3.0 / 3.0),
+    ("W_d", "m/2*dot(r)**2", "k/2*(r**2 + s**2)", "still", 0.0, 0.05, 0.01, 0.04 / 0.05),
+]
+
+
+@pytest.mark.parametrize("largest, T, V, path, speed, d_rate, w_rate, expected", SCALES)
+def test_audit_scale_is_the_largest_energy_of_the_run(tmp_path, largest, T, V, path, speed, d_rate,
+                                                      w_rate, expected):
+    spec, d = derived(tmp_path, T=T, V=V, R="0", Q="0")
+    p = spec.parameter_values
+    t = np.linspace(0.0, 1.0, 11)
+    x = 0.1 + 0 * t if path == "still" else b * t
+    v = speed + 0 * t
+    e = audit(d, p, t, *history(d, p, t, x, v, 0 * t), d_rate * t, w_rate * t, 1e-6,
+              state=lambda ts: np.array([0.1, 0.0, speed, 0.0]))
+    assert e.max_relative_residual == pytest.approx(expected, rel=1e-12), largest
+    np.testing.assert_array_equal(e.dissipated, d_rate * t)
+
+
+def test_audit_of_a_still_system_has_no_scale_and_passes(tmp_path):
+    spec, d = derived(tmp_path, R="0", Q="0")
+    t = np.linspace(0.0, 1.0, 5)
+    zero = 0 * t
+    e = audit(d, spec.parameter_values, t, *history(d, None, t, zero, zero, zero), zero, zero, 1e-6,
+              state=lambda ts: np.zeros(4))
+    assert e.max_relative_residual == 0.0 and e.passed
+
+
+def test_audit_passes_at_exactly_its_tolerance_and_notes_the_damping_degree(tmp_path):
+    spec, d = derived(tmp_path, R="c/2*dot(r)**2", Q="0")
+    p = spec.parameter_values
+    t = np.linspace(0.0, 1.0, 11)
+    x = 0.1 + 0 * t
+    first = audit(d, p, t, *history(d, p, t, x, 0 * t, 0 * t), 0.01 * t, 0.03 * t, 1e-6,
+                  state=lambda ts: np.array([0.1, 0.0, 0.0, 0.0]))
+    again = audit(d, p, t, *history(d, p, t, x, 0 * t, 0 * t), 0.01 * t, 0.03 * t,
+                  first.max_relative_residual, state=lambda ts: np.array([0.1, 0.0, 0.0, 0.0]))
+    assert not first.passed and again.passed
+    assert first.natural and any("h = T + V" in n for n in first.notes)
+    assert any("degree 2" in n and "= 2R" in n for n in first.notes)
