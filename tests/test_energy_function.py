@@ -266,3 +266,28 @@ def test_audit_passes_at_exactly_its_tolerance_and_notes_the_damping_degree(tmp_
     assert not first.passed and again.passed
     assert first.natural and any("h = T + V" in n for n in first.notes)
     assert any("degree 2" in n and "= 2R" in n for n in first.notes)
+
+
+GRID = np.linspace(0.0, 2.0, 20_001)      # the scan grid of switch_times over 2 s
+
+
+@pytest.mark.parametrize("u, where, before, after", [
+    # zero on a grid point with another zero in the cell before / after it
+    ((TIME - (1.0 - 1.5e-4)) * (TIME - 1.0), 1.0, -1, 1),
+    ((TIME - 1.0) * (TIME - (1.0 + 1.5e-4)), 1.0, 1, -1),
+    # zero on the second grid point, touching: positive on both sides
+    ((TIME - float(GRID[1])) ** 2, float(GRID[1]), 1, 1),
+    # zero at t = 0 with a sign change in the second cell
+    (TIME * (TIME - 1.5e-4), 0.0, 1, -1),
+])
+def test_switch_sides_next_to_close_zeros(u, where, before, after):
+    found = {round(s.t, 12): s for s in switch_times(u, 2.0)}
+    s = found[round(where, 12)]
+    assert (s.before, s.after) == (before, after)
+
+
+def test_two_sign_changes_in_neighbouring_cells_are_both_bracketed():
+    # Zeros at 1.00005 and 1.00015 s, one in each of two neighbouring grid cells.
+    switches = switch_times((TIME - 1.00005) * (TIME - 1.00015), 2.0)
+    assert [round(s.t, 9) for s in switches] == [1.00005, 1.00015]
+    assert [(s.before, s.after) for s in switches] == [(1, -1), (-1, 1)]

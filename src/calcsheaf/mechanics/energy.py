@@ -97,9 +97,9 @@ def time_switches(derivation: Derivation, params: dict[str, float]) -> tuple[sp.
 def switch_times(u: sp.Expr, duration: float) -> list[Switch]:
     """Where u(t) is zero or changes sign on [0, duration]: a grid scan, then Brent's method."""
     grid = np.linspace(0.0, duration, ROOT_GRID)
-    fn = sp.lambdify([TIME], u, modules="numpy")
+    fn = sp.lambdify([TIME], u)        # numpy, the default
     with np.errstate(all="ignore"):
-        signs = np.sign(fn(grid)).astype(int)
+        signs = np.sign(fn(grid))
     last = len(grid) - 1
     found = []
     for i in np.nonzero(signs == 0)[0]:
@@ -169,7 +169,7 @@ def jump_work(jumps: list[Jump], t) -> np.ndarray:
         weight = np.where(t > s.hi, 1.0, 0.0)
         if inside.any():
             with np.errstate(all="ignore"):
-                u = sp.lambdify([TIME], j.argument, modules="numpy")(t[inside])
+                u = sp.lambdify([TIME], j.argument)(t[inside])
             weight[inside] = np.heaviside(s.after * u, 0.5)
         total += j.work * weight
     return total
