@@ -291,3 +291,14 @@ def test_two_sign_changes_in_neighbouring_cells_are_both_bracketed():
     switches = switch_times((TIME - 1.00005) * (TIME - 1.00015), 2.0)
     assert [round(s.t, 9) for s in switches] == [1.00005, 1.00015]
     assert [(s.before, s.after) for s in switches] == [(1, -1), (-1, 1)]
+
+
+def test_a_switch_in_the_last_sample_interval_is_counted(tmp_path):
+    # t1 = 0.4 s falls between the last two samples, 0.3 and 0.5 s.
+    spec, d = derived(tmp_path, V="k/2*(r**2 + s**2) - F*r*step(t - t1)", R="0", Q="0")
+    t = np.array([0.0, 0.1, 0.2, 0.3, 0.5])
+    x, zero = 0.1 + 0 * t, 0 * t
+    e = audit(d, spec.parameter_values, t, *history(d, None, t, x, zero, zero), zero, zero, 1e-6,
+              state=lambda ts: np.array([0.1, 0.0, 0.0, 0.0]))
+    np.testing.assert_allclose(e.work_in, [0.0, 0.0, 0.0, 0.0, -0.5], atol=1e-15)
+    assert e.passed

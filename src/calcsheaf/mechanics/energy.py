@@ -74,7 +74,7 @@ def audit(derivation: Derivation, params: dict[str, float], t, Q, QD, QDD, LAM,
     relative = worst / scale if scale > 0 else worst
     impulsive = [j for j in jumps if j.momentum_jump > MOMENTUM_JUMP]
     if impulsive:
-        relative = float("inf")
+        relative = np.inf
     is_natural = natural(d, params)
     notes = list(_notes(d, params, is_natural)) + _jump_notes(jumps, impulsive)
     return EnergyAudit(t=t, h=h, T=T, V=V, dissipated=dissipated, work_in=work_in,
