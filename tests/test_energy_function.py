@@ -302,3 +302,16 @@ def test_a_switch_in_the_last_sample_interval_is_counted(tmp_path):
               state=lambda ts: np.array([0.1, 0.0, 0.0, 0.0]))
     np.testing.assert_allclose(e.work_in, [0.0, 0.0, 0.0, 0.0, -0.5], atol=1e-15)
     assert e.passed
+
+
+@pytest.mark.parametrize("speed, expected", [(-0.6, 2.0), (0.3, 0.8)])
+def test_momentum_jump_is_relative_to_the_larger_momentum(tmp_path, speed, expected):
+    # T = m/8 (ṙ + bΩ step(t − t1))², bΩ = 1.2 m/s: p = 0.5 (ṙ + 1.2 step) jumps by 0.6 N·s;
+    # at ṙ = −0.6 m/s p goes −0.3 → 0.3 (relative 2.0), at ṙ = 0.3 m/s 0.15 → 0.75 (0.8).
+    from calcsheaf.mechanics.energy import switch_jumps
+    spec, d = derived(tmp_path, T="m/8*((dot(r) + b*Omega*step(t - t1))**2 + dot(s)**2)", R="0", Q="0")
+    (jump,) = switch_jumps(d, spec.parameter_values, 1.0, lambda ts: np.array([0.1, 0.0, speed, 0.0]))
+    assert jump.switch.t == pytest.approx(0.4, abs=2e-12)
+    assert jump.momentum_jump == pytest.approx(expected, rel=1e-12)
+    # −ΔL = −(T⁺ − T⁻) = −m/8 ((ṙ + 1.2)² − ṙ²)
+    assert jump.work == pytest.approx(-m / 8 * ((speed + 1.2) ** 2 - speed ** 2), rel=1e-12)
