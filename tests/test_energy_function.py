@@ -315,3 +315,13 @@ def test_momentum_jump_is_relative_to_the_larger_momentum(tmp_path, speed, expec
     assert jump.momentum_jump == pytest.approx(expected, rel=1e-12)
     # −ΔL = −(T⁺ − T⁻) = −m/8 ((ṙ + 1.2)² − ṙ²)
     assert jump.work == pytest.approx(-m / 8 * ((speed + 1.2) ** 2 - speed ** 2), rel=1e-12)
+
+
+def test_two_time_switches_come_in_a_fixed_order(tmp_path):
+    V = "k/2*(r**2 + s**2) - F*r*step(t - t1) + F*s*sign(t - 2*t1)"
+    spec, d = derived(tmp_path, V=V)
+    found = time_switches(d, spec.parameter_values)
+    assert len(found) == 2
+    assert found == tuple(sorted(found, key=sp.default_sort_key))
+    assert sorted(s.t for u in found for s in switch_times(u, 1.0)) == [
+        pytest.approx(0.4, abs=2e-12), pytest.approx(0.8, abs=2e-12)]
