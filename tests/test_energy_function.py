@@ -207,11 +207,13 @@ def test_audit_of_a_step_load_counts_minus_delta_L(tmp_path):
     # t1 = 0.4 s; a sample exactly at t1 (step(0) = 1/2) carries half of it.
     spec, d = derived(tmp_path, V="k/2*(r**2 + s**2) - F*r*step(t - t1)", R="0", Q="0")
     p = spec.parameter_values
-    t = np.array([0.0, 0.2, 0.4, 0.5, 1.0])
+    # Samples also at both ends of the scan cell around t1 (grid of 20 001 points on 1 s).
+    lo, hi = np.linspace(0.0, 1.0, 20_001)[[7999, 8001]]
+    t = np.array([0.0, 0.2, lo, 0.4, hi, 0.5, 1.0])
     x, zero = 0.1 + 0 * t, 0 * t
     e = audit(d, p, t, *history(d, p, t, x, zero, zero), zero, zero, 1e-6,
               state=lambda ts: np.array([0.1, 0.0, 0.0, 0.0]))
-    np.testing.assert_allclose(e.work_in, [0.0, 0.0, -0.25, -0.5, -0.5], atol=1e-15)
+    np.testing.assert_allclose(e.work_in, [0.0, 0.0, 0.0, -0.25, -0.5, -0.5, -0.5], atol=1e-15)
     np.testing.assert_allclose(e.residual, 0.0, atol=1e-15)
     assert e.passed
 
