@@ -320,10 +320,11 @@ def test_momentum_jump_is_relative_to_the_larger_momentum(tmp_path, speed, expec
 
 
 def test_two_time_switches_come_in_a_fixed_order(tmp_path):
-    V = "k/2*(r**2 + s**2) - F*r*step(t - t1) + F*s*sign(t - 2*t1)"
+    # t − t1 and sin(Ωt) cannot be ordered by value: the order is sympy's canonical one.
+    V = "k/2*(r**2 + s**2) - F*r*step(t - t1) + F*s*sign(sin(Omega*t))"
     spec, d = derived(tmp_path, V=V)
     found = time_switches(d, spec.parameter_values)
     assert len(found) == 2
     assert found == tuple(sorted(found, key=sp.default_sort_key))
     assert sorted(s.t for u in found for s in switch_times(u, 1.0)) == [
-        pytest.approx(0.4, abs=2e-12), pytest.approx(0.8, abs=2e-12)]
+        0.0, pytest.approx(0.4, abs=2e-12)]
