@@ -17,7 +17,8 @@ TESTS=(tests/test_lagrange_check.py tests/test_energy_jumps.py tests/test_deriva
        tests/test_energy_function.py
 )
 # Functions whose mutants are run: derivation (M, f, G, gamma, Q by virtual work, the energy
-# function and powers) and the energy audit with its switch jumps.  Notes (text) are left out.
+# function and powers) and the energy audit with its switch jumps.  Left out: the notes
+# (text), the page steps (_steps), and natural()/homogeneity_degree(), which only choose notes.
 DEFAULT_TARGETS=(
   'calcsheaf.mechanics.lagrange.x_diff_ae__mutmut_*'
   'calcsheaf.mechanics.lagrange.x_jacobian_ae__mutmut_*'
@@ -25,8 +26,6 @@ DEFAULT_TARGETS=(
   'calcsheaf.mechanics.lagrange.x_derive__mutmut_*'
   'calcsheaf.mechanics.lagrange.xǁDerivationǁ*_method__mutmut_*'
   'calcsheaf.mechanics.energy.x_audit__mutmut_*'
-  'calcsheaf.mechanics.energy.x_natural__mutmut_*'
-  'calcsheaf.mechanics.energy.x_homogeneity_degree__mutmut_*'
   'calcsheaf.mechanics.energy.x_time_switches__mutmut_*'
   'calcsheaf.mechanics.energy.x_switch_times__mutmut_*'
   'calcsheaf.mechanics.energy.x_switch_jumps__mutmut_*'

@@ -119,16 +119,38 @@ def test_time_switches_are_the_step_and_sign_arguments_of_t_alone(tmp_path):
     found = time_switches(d, spec.parameter_values)
     # step(t − 1/Ω) and sign(t − 1/Ω) switch at t = 1/3 s; step(r − bΩ t) depends on r: not counted.
     assert len(found) == 1
-    assert switch_times(found[0], 1.0) == [pytest.approx(1 / W, rel=1e-15)]
+    assert [s.t for s in switch_times(found[0], 1.0)] == [pytest.approx(1 / W, abs=2e-12)]
 
 
 def test_switch_times_include_exact_zeros_and_the_ends():
     t = TIME
-    assert switch_times(t, 2.0) == [0.0]
-    assert switch_times(t - 2, 2.0) == [2.0]
-    assert switch_times(t - sp.Float(0.5), 2.0) == [0.5]
+    step = 2.0 / 20_000
+    start, = switch_times(t, 2.0)
+    assert (start.t, start.lo, start.hi, start.before, start.after) == (0.0, 0.0, step, -1, 1)
+    end, = switch_times(2 - t, 2.0)
+    assert (end.t, end.lo, end.hi, end.before, end.after) == (2.0, 2.0 - step, 2.0, 1, -1)
+    middle, = switch_times(t - sp.Float(0.5), 2.0)
+    assert (middle.t, middle.before, middle.after) == (0.5, -1, 1)
+    assert middle.hi - middle.lo == pytest.approx(2 * step)
+    touch, = switch_times((t - 1) ** 2, 2.0)          # touches zero without crossing
+    assert (touch.t, touch.before, touch.after) == (1.0, 1, 1)
     assert switch_times(t + 1, 2.0) == []
-    assert switch_times((t - 1) ** 2 + 1, 2.0) == []
+
+
+def test_many_switches_are_all_found():
+    # sign(sin 2π·60 t) over 1 s: 120 zeros in (0, 1) besides t = 0 (the 120th, at 1 s, lies
+    # within round-off of the end); every zero is found.
+    switches = switch_times(sp.sin(2 * sp.pi * 60 * TIME), 1.0)
+    assert len(switches) in (120, 121)
+    np.testing.assert_allclose([s.t for s in switches][:120], np.arange(120) / 120, atol=2e-12)
+
+
+def test_a_switch_argument_undefined_at_the_start_raises_no_warning():
+    import warnings
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        switches = switch_times(sp.log(TIME) - sp.log(sp.Float(0.25)), 1.0)
+    assert [s.t for s in switches] == [pytest.approx(0.25, abs=2e-12)]
 
 
 def history(d, p, t, x, v, a):
@@ -185,10 +207,124 @@ def test_audit_of_a_step_load_counts_minus_delta_L(tmp_path):
     # t1 = 0.4 s; a sample exactly at t1 (step(0) = 1/2) carries half of it.
     spec, d = derived(tmp_path, V="k/2*(r**2 + s**2) - F*r*step(t - t1)", R="0", Q="0")
     p = spec.parameter_values
-    t = np.array([0.0, 0.2, 0.4, 0.5, 1.0])
+    # Samples also at both ends of the scan cell around t1 (grid of 20 001 points on 1 s).
+    lo, hi = np.linspace(0.0, 1.0, 20_001)[[7999, 8001]]
+    t = np.array([0.0, 0.2, lo, 0.4, hi, 0.5, 1.0])
     x, zero = 0.1 + 0 * t, 0 * t
     e = audit(d, p, t, *history(d, p, t, x, zero, zero), zero, zero, 1e-6,
               state=lambda ts: np.array([0.1, 0.0, 0.0, 0.0]))
-    np.testing.assert_allclose(e.work_in, [0.0, 0.0, -0.25, -0.5, -0.5], atol=1e-15)
+    np.testing.assert_allclose(e.work_in, [0.0, 0.0, 0.0, -0.25, -0.5, -0.5, -0.5], atol=1e-15)
     np.testing.assert_allclose(e.residual, 0.0, atol=1e-15)
     assert e.passed
+
+
+# Each term of the audit's energy scale made the largest in turn.  With q = r only
+# (s held at 0), m = 2 kg, F = 5 N, b = 0.4 m:
+#  T dominant: ṙ = 1 m/s held, r = 0.1 m held: T = 1 J, V and h constant; W_d = 0.01 t.
+#  V dominant: T = m/2 ṙ² + F/2 (r − b/2), V = F r, r from 0 to b at rest: h = 2.5 r + 0.5,
+#              ptp V = 2 J, ptp h = 1 J, max |T| = 0.5 J, residual h − h0 up to 1 J.
+#  h dominant: T = m/2 ṙ² − F/2 (r − b/2): h = 7.5 r − 0.5, ptp h = 3 J, ptp V = 2 J.
+#  W_d dominant: at rest, W_d = 0.05 t, W_in = 0.01 t.
+SCALES = [
+    ("T", "m/2*dot(r)**2", "k/2*(r**2 + s**2)", "still", 1.0, 0.01, 0.0, 0.01 / 1.0),
+    ("V", "m/2*dot(r)**2 + F/2*(r - b/2)", "F*r", "ramp", 0.0, 0.0, 0.0, 1.0 / 2.0),
+    ("h", "m/2*dot(r)**2 - F/2*(r - b/2)", "F*r", "ramp", 0.0, 0.0, 0.0, 3.0 / 3.0),
+    ("W_d", "m/2*dot(r)**2", "k/2*(r**2 + s**2)", "still", 0.0, 0.05, 0.01, 0.04 / 0.05),
+]
+
+
+@pytest.mark.parametrize("largest, T, V, path, speed, d_rate, w_rate, expected", SCALES)
+def test_audit_scale_is_the_largest_energy_of_the_run(tmp_path, largest, T, V, path, speed, d_rate,
+                                                      w_rate, expected):
+    spec, d = derived(tmp_path, T=T, V=V, R="0", Q="0")
+    p = spec.parameter_values
+    t = np.linspace(0.0, 1.0, 11)
+    x = 0.1 + 0 * t if path == "still" else b * t
+    v = speed + 0 * t
+    e = audit(d, p, t, *history(d, p, t, x, v, 0 * t), d_rate * t, w_rate * t, 1e-6,
+              state=lambda ts: np.array([0.1, 0.0, speed, 0.0]))
+    assert e.max_relative_residual == pytest.approx(expected, rel=1e-12), largest
+    np.testing.assert_array_equal(e.dissipated, d_rate * t)
+
+
+def test_audit_of_a_still_system_has_no_scale_and_passes(tmp_path):
+    spec, d = derived(tmp_path, R="0", Q="0")
+    t = np.linspace(0.0, 1.0, 5)
+    zero = 0 * t
+    e = audit(d, spec.parameter_values, t, *history(d, None, t, zero, zero, zero), zero, zero, 1e-6,
+              state=lambda ts: np.zeros(4))
+    assert e.max_relative_residual == 0.0 and e.passed
+
+
+def test_audit_passes_at_exactly_its_tolerance_and_notes_the_damping_degree(tmp_path):
+    spec, d = derived(tmp_path, R="c/2*dot(r)**2", Q="0")
+    p = spec.parameter_values
+    t = np.linspace(0.0, 1.0, 11)
+    x = 0.1 + 0 * t
+    first = audit(d, p, t, *history(d, p, t, x, 0 * t, 0 * t), 0.01 * t, 0.03 * t, 1e-6,
+                  state=lambda ts: np.array([0.1, 0.0, 0.0, 0.0]))
+    again = audit(d, p, t, *history(d, p, t, x, 0 * t, 0 * t), 0.01 * t, 0.03 * t,
+                  first.max_relative_residual, state=lambda ts: np.array([0.1, 0.0, 0.0, 0.0]))
+    assert not first.passed and again.passed
+    assert first.natural and any("h = T + V" in n for n in first.notes)
+    assert any("degree 2" in n and "= 2R" in n for n in first.notes)
+
+
+GRID = np.linspace(0.0, 2.0, 20_001)      # the scan grid of switch_times over 2 s
+
+
+@pytest.mark.parametrize("u, where, before, after", [
+    # zero on a grid point with another zero in the cell before / after it
+    ((TIME - (1.0 - 1.5e-4)) * (TIME - 1.0), 1.0, -1, 1),
+    ((TIME - 1.0) * (TIME - (1.0 + 1.5e-4)), 1.0, 1, -1),
+    # zero on the second grid point, touching: positive on both sides
+    ((TIME - float(GRID[1])) ** 2, float(GRID[1]), 1, 1),
+    # zero at t = 0 with a sign change in the second cell
+    (TIME * (TIME - 1.5e-4), 0.0, 1, -1),
+])
+def test_switch_sides_next_to_close_zeros(u, where, before, after):
+    found = {round(s.t, 12): s for s in switch_times(u, 2.0)}
+    s = found[round(where, 12)]
+    assert (s.before, s.after) == (before, after)
+
+
+def test_two_sign_changes_in_neighbouring_cells_are_both_bracketed():
+    # Zeros at 1.00005 and 1.00015 s, one in each of two neighbouring grid cells.
+    switches = switch_times((TIME - 1.00005) * (TIME - 1.00015), 2.0)
+    assert [round(s.t, 9) for s in switches] == [1.00005, 1.00015]
+    assert [(s.before, s.after) for s in switches] == [(1, -1), (-1, 1)]
+
+
+def test_a_switch_in_the_last_sample_interval_is_counted(tmp_path):
+    # t1 = 0.4 s falls between the last two samples, 0.3 and 0.5 s.
+    spec, d = derived(tmp_path, V="k/2*(r**2 + s**2) - F*r*step(t - t1)", R="0", Q="0")
+    t = np.array([0.0, 0.1, 0.2, 0.3, 0.5])
+    x, zero = 0.1 + 0 * t, 0 * t
+    e = audit(d, spec.parameter_values, t, *history(d, None, t, x, zero, zero), zero, zero, 1e-6,
+              state=lambda ts: np.array([0.1, 0.0, 0.0, 0.0]))
+    np.testing.assert_allclose(e.work_in, [0.0, 0.0, 0.0, 0.0, -0.5], atol=1e-15)
+    assert e.passed
+
+
+@pytest.mark.parametrize("speed, expected", [(-0.6, 2.0), (0.3, 0.8)])
+def test_momentum_jump_is_relative_to_the_larger_momentum(tmp_path, speed, expected):
+    # T = m/8 (ṙ + bΩ step(t − t1))², bΩ = 1.2 m/s: p = 0.5 (ṙ + 1.2 step) jumps by 0.6 N·s;
+    # at ṙ = −0.6 m/s p goes −0.3 → 0.3 (relative 2.0), at ṙ = 0.3 m/s 0.15 → 0.75 (0.8).
+    from calcsheaf.mechanics.energy import switch_jumps
+    spec, d = derived(tmp_path, T="m/8*((dot(r) + b*Omega*step(t - t1))**2 + dot(s)**2)", R="0", Q="0")
+    (jump,) = switch_jumps(d, spec.parameter_values, 1.0, lambda ts: np.array([0.1, 0.0, speed, 0.0]))
+    assert jump.switch.t == pytest.approx(0.4, abs=2e-12)
+    assert jump.momentum_jump == pytest.approx(expected, rel=1e-12)
+    # −ΔL = −(T⁺ − T⁻) = −m/8 ((ṙ + 1.2)² − ṙ²)
+    assert jump.work == pytest.approx(-m / 8 * ((speed + 1.2) ** 2 - speed ** 2), rel=1e-12)
+
+
+def test_two_time_switches_come_in_a_fixed_order(tmp_path):
+    # t − t1 and sin(Ωt) cannot be ordered by value: the order is sympy's canonical one.
+    V = "k/2*(r**2 + s**2) - F*r*step(t - t1) + F*s*sign(sin(Omega*t))"
+    spec, d = derived(tmp_path, V=V)
+    found = time_switches(d, spec.parameter_values)
+    assert len(found) == 2
+    assert found == tuple(sorted(found, key=sp.default_sort_key))
+    assert sorted(s.t for u in found for s in switch_times(u, 1.0)) == [
+        0.0, pytest.approx(0.4, abs=2e-12)]

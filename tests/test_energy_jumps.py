@@ -107,9 +107,14 @@ def test_square_wave_load_switching_at_t0_and_every_half_period(tmp_path):
 
 def test_switch_times_are_located_to_round_off():
     t = sp.Symbol("t", real=True)
-    roots = switch_times(sp.sin(sp.Float(31.4159) * t), 1.0)
-    assert len(roots) == 10
-    np.testing.assert_allclose(roots, np.arange(10) * math.pi / 31.4159, rtol=0, atol=1e-14)
+    switches = switch_times(sp.sin(sp.Float(31.4159) * t), 1.0)
+    assert len(switches) == 10
+    # Brent's method to its default tolerance, xtol = 2e-12 s (scipy.optimize.brentq).
+    np.testing.assert_allclose([s.t for s in switches], np.arange(10) * math.pi / 31.4159, rtol=0, atol=2e-12)
+    # sin rises through 0 at t = 0 (the side before the record taken as the opposite one),
+    # then falls, rises, ...
+    assert [(s.before, s.after) for s in switches[:3]] == [(-1, 1), (1, -1), (-1, 1)]
+    assert all(s.lo <= s.t <= s.hi and s.hi - s.lo <= 2 / 20_000 for s in switches)
 
 
 def test_audit_fails_when_the_motion_misses_the_step(tmp_path):

@@ -33,12 +33,26 @@ MOMENTUM_JUMP = 1e-12        # relative jump of ∂L/∂q̇ taken as a real jump
 
 
 @dataclass(frozen=True)
+class Switch:
+    """u(t) crosses zero at t (s) inside the grid cell [lo, hi]; signs of u before and after.
+
+    At t = 0 and at the end of the record the side outside it is taken as the opposite of
+    the side inside, so that the value there (step(0) = 1/2, sign(0) = 0) is midway.
+    """
+    t: float
+    lo: float
+    hi: float
+    before: int
+    after: int
+
+
+@dataclass(frozen=True)
 class Jump:
     """L switched at t (s): `work` = −ΔL (J) at the state reached, put in by the switch."""
-    t: float
+    switch: Switch
+    argument: sp.Expr
     work: float
     momentum_jump: float      # largest |Δ ∂L/∂q̇| relative to |∂L/∂q̇|; 0 when continuous
-    arguments: tuple[sp.Expr, ...]
 
 
 def audit(derivation: Derivation, params: dict[str, float], t, Q, QD, QDD, LAM,
@@ -50,7 +64,7 @@ def audit(derivation: Derivation, params: dict[str, float], t, Q, QD, QDD, LAM,
     h = series_function(d.energy_function, d, params)(*args)
     T = series_function(d.T, d, params)(*args)
     V = series_function(d.V, d, params)(*args)
-    jumps = switch_jumps(d, params, t, state)
+    jumps = switch_jumps(d, params, float(t[-1]), state)
     switched = jump_work(jumps, t)
     work_in = work_in + switched - switched[0]
     residual = h - h[0] + dissipated - work_in
@@ -60,7 +74,7 @@ def audit(derivation: Derivation, params: dict[str, float], t, Q, QD, QDD, LAM,
     relative = worst / scale if scale > 0 else worst
     impulsive = [j for j in jumps if j.momentum_jump > MOMENTUM_JUMP]
     if impulsive:
-        relative = float("inf")
+        relative = np.inf
     is_natural = natural(d, params)
     notes = list(_notes(d, params, is_natural)) + _jump_notes(jumps, impulsive)
     return EnergyAudit(t=t, h=h, T=T, V=V, dissipated=dissipated, work_in=work_in,
@@ -80,78 +94,73 @@ def time_switches(derivation: Derivation, params: dict[str, float]) -> tuple[sp.
     return tuple(sorted(found, key=sp.default_sort_key))
 
 
-def switch_times(u: sp.Expr, duration: float) -> list[float]:
-    """Times in [0, duration] where u(t) is zero or changes sign (grid scan, then Brent)."""
+def switch_times(u: sp.Expr, duration: float) -> list[Switch]:
+    """Where u(t) is zero or changes sign on [0, duration]: a grid scan, then Brent's method."""
     grid = np.linspace(0.0, duration, ROOT_GRID)
+    fn = sp.lambdify([TIME], u)        # numpy, the default
     with np.errstate(all="ignore"):
-        values = np.broadcast_to(np.asarray(sp.lambdify([TIME], u, modules="numpy")(grid), dtype=float),
-                                 grid.shape)
-    scalar = sp.lambdify([TIME], u, modules="math")
-    roots = [float(x) for x in grid[values == 0]]
-    for i in np.nonzero(values[:-1] * values[1:] < 0)[0]:
-        roots.append(float(brentq(scalar, grid[i], grid[i + 1], xtol=1e-15 * max(1.0, duration))))
-    return sorted(roots)
+        signs = np.sign(fn(grid))
+    last = len(grid) - 1
+    found = []
+    for i in np.nonzero(signs == 0)[0]:
+        before = signs[i - 1] if i > 0 else -signs[i + 1]
+        after = signs[i + 1] if i < last else -before
+        found.append(Switch(float(grid[i]), float(grid[max(i - 1, 0)]), float(grid[min(i + 1, last)]),
+                            int(before), int(after)))
+    for i in np.nonzero(signs[:-1] * signs[1:] < 0)[0]:
+        root = float(brentq(fn, grid[i], grid[i + 1]))
+        found.append(Switch(root, float(grid[i]), float(grid[i + 1]), int(signs[i]), int(signs[i + 1])))
+    return sorted(found, key=lambda s: s.t)
 
 
-def switch_jumps(derivation: Derivation, params: dict[str, float], t,
+def switch_jumps(derivation: Derivation, params: dict[str, float], duration: float,
                  state: Callable[[float], np.ndarray]) -> list[Jump]:
-    """Every switch of L in time over the record, with its work and momentum jump."""
+    """Every switch of L in time over [0, duration], with its work and momentum jump.
+
+    Each argument's switches are taken one by one, the other step() and sign() terms
+    at their values at that time: exact for an L linear in each switching term.  Two
+    different arguments switching at the same instant inside a product of both would
+    be booked wrongly, and the audit would then fail (never pass falsely).
+    """
     d = derivation
-    arguments = time_switches(d, params)
-    if not arguments:
-        return []
-    duration = float(t[-1])
-    moments: dict[float, list[sp.Expr]] = {}
-    for u in arguments:
-        for ts in switch_times(u, duration):
-            key = next((k for k in moments if abs(k - ts) <= 1e-12 * max(1.0, duration)), ts)
-            moments.setdefault(key, []).append(u)
     L = numeric(d.L, params)
     momenta = [diff_ae(L, v) for v in d.qd]
-    n = len(d.q)
     jumps = []
-    for ts in sorted(moments):
-        y = np.asarray(state(ts), dtype=float)
-        point = {TIME: sp.Float(ts), **{s: sp.Float(v) for s, v in zip((*d.q, *d.qd), y[:2 * n])}}
-        left, right = _sides(moments[ts], ts, duration)
-        L_left, L_right = (float(L.xreplace(side).xreplace(point)) for side in (left, right))
-        p_left = np.array([float(p.xreplace(left).xreplace(point)) for p in momenta])
-        p_right = np.array([float(p.xreplace(right).xreplace(point)) for p in momenta])
-        size = max(float(np.max(np.abs(p_left), initial=0.0)), float(np.max(np.abs(p_right), initial=0.0)))
-        change = float(np.max(np.abs(p_right - p_left), initial=0.0))
-        jumps.append(Jump(t=ts, work=-(L_right - L_left),
-                          momentum_jump=change / size if size > 0 else change,
-                          arguments=tuple(moments[ts])))
-    return jumps
+    for u in time_switches(d, params):
+        for switch in switch_times(u, duration):
+            y = state(switch.t)
+            point = {TIME: sp.Float(switch.t), **{s: sp.Float(v) for s, v in zip((*d.q, *d.qd), y)}}
+            left, right = _sides(u, switch)
+            L_left, L_right = (float(L.xreplace(side).xreplace(point)) for side in (left, right))
+            p_left = np.array([float(p.xreplace(left).xreplace(point)) for p in momenta])
+            p_right = np.array([float(p.xreplace(right).xreplace(point)) for p in momenta])
+            size = float(np.max(np.abs(np.concatenate([p_left, p_right]))))
+            change = float(np.max(np.abs(p_right - p_left)))
+            jumps.append(Jump(switch=switch, argument=u, work=L_left - L_right,
+                              momentum_jump=change / size if size > 0 else change))
+    return sorted(jumps, key=lambda j: j.switch.t)
 
 
-def _sides(arguments, ts: float, duration: float) -> tuple[dict, dict]:
-    """Values of the switching step()/sign() terms just before and just after ts."""
-    delta = 1e-7 * max(1.0, duration)
-    left, right = {}, {}
-    for u in arguments:
-        scalar = sp.lambdify([TIME], u, modules="math")
-        for side, when in ((left, ts - delta), (right, ts + delta)):
-            s = float(np.sign(scalar(when)))
-            side[sp.Heaviside(u)] = sp.Integer(1) if s > 0 else sp.Integer(0)
-            side[sp.sign(u)] = sp.Integer(int(s))
-    return left, right
+def _sides(u: sp.Expr, switch: Switch) -> tuple[dict, dict]:
+    """Values of step(u) and sign(u) just before and just after the switch."""
+    before, after = sp.Integer(switch.before), sp.Integer(switch.after)
+    return ({sp.Heaviside(u): sp.Heaviside(before), sp.sign(u): sp.sign(before)},
+            {sp.Heaviside(u): sp.Heaviside(after), sp.sign(u): sp.sign(after)})
 
 
 def jump_work(jumps: list[Jump], t) -> np.ndarray:
-    """Σ of the switch work up to each sample: all of it after t_s, half at t_s itself."""
-    t = np.asarray(t, dtype=float)
-    total = np.zeros_like(t)
-    window = 1e-9 * max(1.0, float(t[-1]))
+    """Σ of the switch work up to each sample: all of it after the switch, half exactly at it.
+
+    Inside the grid cell of a switch the side of a sample is read from the sign of u
+    there, as the step() in h is.
+    """
+    total = np.zeros(len(t))
     for j in jumps:
-        weight = np.where(t > j.t + window, 1.0, 0.0)
-        near = np.abs(t - j.t) <= window
-        if near.any():
-            u = j.arguments[0]
-            rises = np.sign(sp.lambdify([TIME], u, modules="math")(j.t + 1e-7 * max(1.0, float(t[-1]))))
-            values = np.broadcast_to(np.asarray(sp.lambdify([TIME], u, modules="numpy")(t[near]),
-                                                dtype=float), t[near].shape)
-            weight[near] = np.heaviside(rises * values, 0.5)
+        s = j.switch
+        inside = (t >= s.lo) & (t <= s.hi)
+        weight = np.where(t > s.hi, 1.0, 0.0)
+        if inside.any():
+            weight[inside] = np.heaviside(s.after * sp.lambdify([TIME], j.argument)(t[inside]), 0.5)
         total += j.work * weight
     return total
 
@@ -210,12 +219,12 @@ def homogeneity_degree(derivation: Derivation, params: dict[str, float], samples
 def _jump_notes(jumps: list[Jump], impulsive: list[Jump]) -> list[str]:
     notes = []
     if jumps:
-        times = ", ".join(f"{j.t:.6g}" for j in jumps[:5]) + (", ..." if len(jumps) > 5 else "")
+        times = ", ".join(f"{j.switch.t:.6g}" for j in jumps[:5]) + (", ..." if len(jumps) > 5 else "")
         notes.append(f"L switches in time {len(jumps)} time(s) (step() or sign() of a function of t "
                      f"alone), at t = {times} s: the jump −ΔL at the state reached, "
                      f"{sum(j.work for j in jumps):.6g} J in all, is counted in the work put in.")
     for j in impulsive:
-        notes.append(f"At t = {j.t:.6g} s the momentum ∂L/∂q̇ jumps (relative change "
+        notes.append(f"At t = {j.switch.t:.6g} s the momentum ∂L/∂q̇ jumps (relative change "
                      f"{j.momentum_jump:.3g}): a kinetic energy that switches in time needs an "
                      "impulse, which the equations (taken almost everywhere) leave out, so the "
                      "motion after the switch is not determined by them. Smooth the switch in T.")
