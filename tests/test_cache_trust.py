@@ -330,3 +330,16 @@ def test_render_limits_name_the_template(tmp_path, monkeypatch):
     env = theme.environment(tmp_path)
     slow.write_text("fine")
     assert theme.render(env, "index.html.j2", project=info) == "<p>Limits</p>\nfine"
+
+
+def test_a_key_that_cannot_be_made_turns_the_cache_off_with_a_note(tmp_path, monkeypatch):
+    blocker = tmp_path / "not-a-folder"
+    blocker.write_text("")
+    monkeypatch.setenv("CALCSHEAF_CACHE_KEY_FILE", str(blocker / "cache.key"))
+    store = cache_mod.Cache(tmp_path / "project")
+    store.put("calc", "k", {}, {"a": b"b"})
+    assert not store.enabled and store.get("calc", "k") is None
+    assert not (tmp_path / "project" / cache_mod.FOLDER).exists()
+    (note,) = store.report()
+    assert note.startswith(f"the build cache is off: cannot create the cache key {blocker / 'cache.key'}")
+    assert "CALCSHEAF_CACHE_KEY_FILE" in note
