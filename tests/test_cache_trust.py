@@ -166,7 +166,7 @@ def test_key_file_is_made_private_and_an_exposed_key_turns_the_cache_off(tmp_pat
     assert not exposed.enabled and exposed.get("calc", "x") is None
     (note,) = exposed.report()
     assert "the build cache is off" in note and "readable or writable by other users" in note
-    assert "Fix: remove the file" in note
+    assert "Fix: let its folder be written and keep the file private to you" in note
 
 
 def test_cached_report_round_trips_as_plain_data(tmp_path):
@@ -341,5 +341,6 @@ def test_a_key_that_cannot_be_made_turns_the_cache_off_with_a_note(tmp_path, mon
     assert not store.enabled and store.get("calc", "k") is None
     assert not (tmp_path / "project" / cache_mod.FOLDER).exists()
     (note,) = store.report()
-    assert note.startswith(f"the build cache is off: cannot create the cache key {blocker / 'cache.key'}")
+    assert note.startswith(f"the build cache is off: cannot read the cache key {blocker / 'cache.key'} "
+                           "(Not a directory). Fix: ")
     assert "CALCSHEAF_CACHE_KEY_FILE" in note

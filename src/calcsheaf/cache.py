@@ -131,9 +131,9 @@ class Cache:
             try:
                 self._secret = load_secret(cache_key_file())
             except KeyFileError as exc:
-                self.notes.append(f"the build cache is off: {exc}. Fix: remove the file so that "
-                                  f"calcsheaf makes a new one (mode 0600), or set {KEY_FILE_ENV} "
-                                  "to a file of your own")
+                self.notes.append(f"the build cache is off: {exc}. Fix: let its folder be written "
+                                  "and keep the file private to you (remove it to have a new one "
+                                  f"made, mode 0600), or set {KEY_FILE_ENV} to a file of your own")
 
     @property
     def enabled(self) -> bool:
