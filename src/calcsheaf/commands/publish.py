@@ -13,6 +13,7 @@ from pathlib import Path
 
 from ..archive.revisions import revision_history
 from ..cache import Cache, key as cache_key
+from ..errors import BuildError
 from ..isolation import stage
 from ..archive.signoffs import signoff_status
 from ..model import CalcReport, PackageModel, ProjectInfo
@@ -98,7 +99,11 @@ def analyse_and_render(source, *, project: ProjectInfo, date: str, use_cache: bo
     """Worker: one calc from the bytes read from its file (a pipeline.CalcSource) to its site
     files (runs in an isolated process)."""
     from ..pipeline import analyse_source
-    return render_entry(analyse_source(source), project, date, use_cache)
+    report = analyse_source(source)
+    try:
+        return render_entry(report, project, date, use_cache)
+    except BuildError as exc:     # e.g. a template override: the calc fails under its own number
+        return replace(report, error=exc), None
 
 
 def site_files(package: PackageModel, calc_files_list: list[dict[str, bytes]],
