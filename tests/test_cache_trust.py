@@ -115,6 +115,7 @@ def test_crafted_pickle_entries_run_nothing_and_are_rebuilt(tmp_path, capsys):
     assert not marker.exists()
     assert "a.toml: solve" in captured.out                     # analysed again, not trusted
     assert captured.err.count("failed authentication") == 1, captured.err
+    assert f"ignored {len(crafted)} entries" in captured.err     # calc and equation entries
     assert x_static(project / "_site") == pytest.approx(10 * 9.80665 / 4000 * 1000, rel=1e-9)
 
 
