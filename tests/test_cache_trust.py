@@ -345,3 +345,22 @@ def test_a_key_that_cannot_be_made_turns_the_cache_off_with_a_note(tmp_path, mon
     assert note.startswith(f"the build cache is off: cannot read the cache key {blocker / 'cache.key'} "
                            "(Not a directory). Fix: ")
     assert "CALCSHEAF_CACHE_KEY_FILE" in note
+
+
+def test_a_template_linked_outside_after_check_is_refused_at_render(tmp_path):
+    """The link check of `check` cannot be raced: the loader refuses it too."""
+    root = tmp_path / "project"
+    (root / "templates" / "sections").mkdir(parents=True)
+    outside = tmp_path / "environ"
+    outside.write_text("CALCSHEAF_PASSPHRASE=secret\n")
+    (root / "templates" / "index.html.j2").write_text("{% include 'sections/x.html.j2' %}")
+    (root / "templates" / "sections" / "x.html.j2").symlink_to(outside)
+    (root / "templates" / "static").mkdir()
+    (root / "templates" / "static" / "logo.svg").symlink_to(outside)
+    env = theme.environment(root)
+    with pytest.raises(BuildError) as refused:
+        theme.render(env, "index.html.j2", project=ProjectInfo("P-1", "n", root))
+    assert "secret" not in refused.value.message
+    assert f"is a link to {outside}, outside the project" in refused.value.message
+    with pytest.raises(BuildError, match="outside the project"):
+        theme.static_assets(root)
