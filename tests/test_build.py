@@ -140,7 +140,9 @@ def test_corrupt_cache_is_detected_and_rebuilt(tmp_path, capsys):
     project = make_project(tmp_path / "p", {"a.toml": tiny("C-1")})
     assert main(["build", str(project)]) == 0
     first = snapshot(project / "_site")
-    for entry in (project / ".calcsheaf-cache").rglob("*.pickle"):
+    entries = list((project / ".calcsheaf-cache").rglob("*.entry"))
+    assert entries
+    for entry in entries:
         entry.write_bytes(b"\0" * 40 + entry.read_bytes()[40:])
     (project / "._site.key").unlink()
     capsys.readouterr()

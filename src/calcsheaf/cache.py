@@ -62,23 +62,33 @@ class KeyFileError(Exception):
 
 
 def load_secret(path: Path) -> bytes:
-    """The secret in `path`, made (random, mode 0600) when the file does not exist yet."""
+    """The secret in `path`, made (random, mode 0600) when the file does not exist yet.
+
+    A new key is written to a private temporary file and linked into place, so a
+    concurrent build never reads a half-written key."""
     try:
         return _read_secret(path)
     except FileNotFoundError:
         pass
+    temp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
+    fd = None
     try:
         path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
-        fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
-    except FileExistsError:            # made by a concurrent build a moment ago
-        return _read_secret(path)
+        fd = os.open(temp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        try:
+            os.write(fd, secrets.token_bytes(KEY_BYTES))
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+        try:
+            os.link(temp, path)
+        except FileExistsError:        # made by a concurrent build a moment ago
+            pass
     except OSError as exc:
         raise KeyFileError(f"cannot create the cache key {path} ({exc.strerror})") from None
-    try:
-        os.write(fd, secrets.token_bytes(KEY_BYTES))
-        os.fsync(fd)
     finally:
-        os.close(fd)
+        if fd is not None:
+            temp.unlink(missing_ok=True)
     return _read_secret(path)
 
 
@@ -121,9 +131,9 @@ class Cache:
             try:
                 self._secret = load_secret(cache_key_file())
             except KeyFileError as exc:
-                self.notes.append(f"the build cache is off: {exc}. Fix: remove the file so that "
-                                  f"calcsheaf makes a new one (mode 0600), or set {KEY_FILE_ENV} "
-                                  "to a file of your own")
+                self.notes.append(f"the build cache is off: {exc}. Fix: let its folder be written "
+                                  "and keep the file private to you (remove it to have a new one "
+                                  f"made, mode 0600), or set {KEY_FILE_ENV} to a file of your own")
 
     @property
     def enabled(self) -> bool:

@@ -149,9 +149,11 @@ def build_calcs(root: Path, project: ProjectInfo, cache, jobs: int | None, progr
     work = functools.partial(publish.analyse_and_render, project=project, date=date,
                              use_cache=cache is not None)
     fresh = run_isolated(work, [sources[i] for i in todo], jobs or default_jobs(),
-                         lambda source, error: (failed_source(source, error), None), progress)
+                         lambda source, error: (failed_source(source, error), None, []), progress)
     stable = cache is not None and records_digest(root) == records
-    for i, (report, files) in zip(todo, fresh):
+    for i, (report, files, rejected) in zip(todo, fresh):
+        if cache is not None:
+            cache.rejected.extend(Path(p) for p in rejected)
         if files is None:
             report, files = publish.render_entry(report, project, date, use_cache=cache is not None)
         entries[i] = (report, files)

@@ -13,6 +13,7 @@ from .. import settings
 from ..archive.revisions import issued_changes, issued_pdf, revision_history
 from ..cache import Cache, key as cache_key
 from ..identifiers import next_revision
+from ..errors import BuildError
 from ..isolation import stage
 from ..archive.signoffs import signoff_status
 from ..model import CalcReport, PackageModel, ProjectInfo
@@ -89,14 +90,15 @@ def equation_images(project: ProjectInfo, use_cache: bool = True) -> EquationIma
     return CachedEquationImages(Cache(project.root)) if use_cache else EquationImages()
 
 
-def render_entry(report: CalcReport, project: ProjectInfo, date: str,
-                 use_cache: bool = True) -> tuple[CalcReport, dict[str, bytes]]:
+def render_entry(report: CalcReport, project: ProjectInfo, date: str, use_cache: bool = True,
+                 images: EquationImages | None = None) -> tuple[CalcReport, dict[str, bytes]]:
     """The report with its issue status, and its site files."""
     stage("render")
     report, history, signoff = with_status(report, project)
     issued = report.error is None and report.status != "draft"
     changes = issued_changes(project.root, report.number, report.revision) if issued else None
-    files, _ = calc_files(report, project, date, equation_images(project, use_cache),
+    images = equation_images(project, use_cache) if images is None else images
+    files, _ = calc_files(report, project, date, images,
                           history=history, signoff=signoff, changes=changes)
     if issued:   # serve what was signed
         files[site.calc_pdf_path(report.number)] = issued_pdf(project.root, report.number,
@@ -105,10 +107,18 @@ def render_entry(report: CalcReport, project: ProjectInfo, date: str,
 
 
 def analyse_and_render(source, *, project: ProjectInfo, date: str, use_cache: bool = True):
-    """Worker: one calc from the bytes read from its file (a pipeline.CalcSource) to its site
-    files (runs in an isolated process)."""
+    """Worker: one calc from the bytes read from its file (a pipeline.CalcSource) to
+    (report, site files or None when the page could not be made, paths of cache entries
+    that failed authentication); runs in an isolated process."""
     from ..pipeline import analyse_source
-    return render_entry(analyse_source(source), project, date, use_cache)
+    report = analyse_source(source)
+    images = equation_images(project, use_cache)
+    rejected = images.store.rejected if isinstance(images, CachedEquationImages) else []
+    try:
+        report, files = render_entry(report, project, date, use_cache, images)
+    except BuildError as exc:     # e.g. a template override: the calc fails under its own number
+        report, files = replace(report, error=exc), None
+    return report, files, [str(p) for p in rejected]
 
 
 def site_files(package: PackageModel, calc_files_list: list[dict[str, bytes]],

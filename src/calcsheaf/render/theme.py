@@ -276,8 +276,11 @@ _FIX = ("correct the template (an override in the project's templates/ folder re
 
 
 def _compile_theme(env: jinja2.Environment) -> None:
-    """Compile every template once in this process, so the rendering children share them."""
-    for template_name in env.list_templates(filter_func=lambda n: n.endswith(".j2")):
+    """Compile every template once in this process, so the rendering children share them
+    (found without following links to folders, which could loop)."""
+    folders = [Path(path) for loader in getattr(env.loader, "loaders", []) for path in loader.searchpath]
+    names = sorted({p.relative_to(f).as_posix() for f in folders for p in f.rglob("*.j2")})
+    for template_name in names:
         try:
             env.get_template(template_name)
         except jinja2.TemplateError:
