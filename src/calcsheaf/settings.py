@@ -34,7 +34,7 @@ def _raw(name: str) -> str:
 
 
 def _refuse(name: str, text: str, problem: str, fix: str) -> InputError:
-    return InputError(f"{name}={text!r} {problem}", file="environment", key=name,
+    return InputError(f"{text!r} {problem}", file="environment", key=name,
                       fix=f"{fix}, or unset {name} for the default")
 
 
@@ -47,7 +47,7 @@ def _number(name: str, lowest: float, highest: float, unit: str, default: float)
     except ValueError:
         value = math.nan
     if not (math.isfinite(value) and lowest <= value <= highest):
-        raise _refuse(name, text, f"is not a number of {unit} from {lowest:g} to {highest:g}",
+        raise _refuse(name, text, f"is not a number of {unit} from {lowest:.10g} to {highest:.10g}",
                       f"set it to e.g. {default:g}")
     return value
 
@@ -76,8 +76,9 @@ def source_date_epoch() -> int | None:
     return int(text)
 
 
-def kdf_log2n(default: int, lowest: int) -> int:
-    """scrypt cost exponent (CALCSHEAF_KDF_LOG2N) from `lowest` to MAX_KDF_LOG2N, else `default`."""
+def kdf_log2n(default: int = 17, lowest: int = 10) -> int:
+    """scrypt cost exponent (CALCSHEAF_KDF_LOG2N) from `lowest` to MAX_KDF_LOG2N, else `default`
+    (archive/keys.py passes its DEFAULT_LOG2N and MIN_LOG2N)."""
     text = _raw("CALCSHEAF_KDF_LOG2N")
     if not text:
         return default
@@ -85,6 +86,14 @@ def kdf_log2n(default: int, lowest: int) -> int:
         raise _refuse("CALCSHEAF_KDF_LOG2N", text, f"is not a whole number from {lowest} to "
                       f"{MAX_KDF_LOG2N}", f"set it to e.g. {default}")
     return int(text)
+
+
+def validate() -> None:
+    """Read every setting once, so that a bad value stops a command before it writes anything."""
+    time_limit_s()
+    memory_limit_bytes()
+    source_date_epoch()
+    kdf_log2n()
 
 
 def debug() -> bool:
