@@ -449,9 +449,10 @@ def test_forced_damped_sdof_amplitude_and_phase(tmp_path):
     assert result(report, "Xpeak") == pytest.approx(F0 / k / (2 * zeta * math.sqrt(1 - zeta ** 2)) * 1000,
                                                     rel=1e-9)
     fr = report.frequency_response
+    assert fr.units["x"] == "mm"                 # the coordinate's display unit
     for f_hz, amp, phase in zip(fr.frequency_hz, fr.amplitude["x"], fr.phase_deg["x"]):
         X, phi = amplitude_phase(float(f_hz))
-        assert amp == pytest.approx(X, rel=1e-12)
+        assert amp == pytest.approx(X * 1000, rel=1e-12)
         assert phase == pytest.approx(phi, abs=1e-9)
 
 

@@ -72,9 +72,9 @@ def fake_render(pdf: bytes, *, passed: bool = True):
     f_n = sqrt(k/m) / (2 pi): Rao, Mechanical Vibrations, 5th ed., sec. 2.2, eq. (2.14)
     (omega_n = sqrt(k/m)).
     """
-    def render(project_root, calc_number, out_dir, *, status, revision, signoff):
-        calc = tomllib.loads(revisions.projectfiles.find_calc_file(
-            project_root, calc_number).read_text())
+    def render(frozen_calc, project_root, out_dir, *, calc_number, status, revision, signoff,
+               history):
+        calc = tomllib.loads(Path(frozen_calc).read_text())
         m, k = _number(calc["parameters"]["m"]), _number(calc["parameters"]["k"])
         f_n = math.sqrt(k / m) / (2 * math.pi)
         results = {"calc": {"number": calc_number, "title": calc["calc"]["title"],
@@ -378,7 +378,7 @@ def test_the_same_person_in_both_roles_is_detected(issued, tmp_path):
     people["checker"] = people["preparer"]
     (folder / "record" / "people.json").write_bytes(pretty_json(people))
     failures = dict(_failures(verify_revision(folder)))
-    assert "the same person or the same key took both roles" in failures[
+    assert "the same person, name or key took both roles" in failures[
         "preparer differs from checker"]
 
 
@@ -390,7 +390,7 @@ def test_a_key_not_in_the_project_roster_is_detected(issued, tmp_path):
     folder = project / "issued" / "C-1" / "A"
     failures = dict(_failures(verify_path(folder)[0][1]))
     assert failures["checker key listed in the project's project.toml"] == (
-        "key of 'cd' is not listed in the project's project.toml")
+        "'cd' with this name and key is not listed in the project's project.toml")
 
 
 # --- revisions, history and diff ---------------------------------------------------------
@@ -412,27 +412,64 @@ def test_revision_b_supersedes_a_and_diff_shows_the_change(project, tiny_pdf, ca
     assert "revision B supersedes A: link matches" in capsys.readouterr().out
 
     rows = {(r["section"], r["item"]): r for r in revision_diff(project, "C-1", "A", "B")["rows"]}
-    assert rows[("inputs", "parameter k")]["change"] == "changed"
-    assert rows[("inputs", "parameter m")]["change"] == "same"
+    assert rows[("inputs", "parameters.k")]["change"] == "changed"
+    assert rows[("inputs", "parameters.m")]["change"] == "same"
     # f_n = sqrt(k/m)/(2 pi) (Rao, Mechanical Vibrations, 5th ed., eq. 2.14), m = 850 kg:
-    # k = 1.2 MN/m -> 5.97998 Hz, k = 1.5 MN/m -> 6.68584 Hz (shown to 6 significant digits)
-    assert (rows[("results", "result f1")]["old"], rows[("results", "result f1")]["new"]) == (
-        "5.98 Hz", "6.68584 Hz")
+    # k = 1.2 MN/m -> 5.979977 Hz, k = 1.5 MN/m -> 6.685840 Hz, shown in full precision
+    old, new = rows[("results", "results.f1")]["old"], rows[("results", "results.f1")]["new"]
+    assert old.endswith(" Hz") and new.endswith(" Hz")
+    assert math.isclose(float(old.split()[0]), math.sqrt(1.2e6 / 850) / (2 * math.pi), rel_tol=1e-15)
+    assert math.isclose(float(new.split()[0]), math.sqrt(1.5e6 / 850) / (2 * math.pi), rel_tol=1e-15)
     text = format_diff(revision_diff(project, "C-1", "A", "B"))
-    assert "* parameter k" in text and "item(s) differ" in text
+    assert "* parameters.k\n      A: 1200000 N/m\n      B: 1500000 N/m" in text
+    assert "item(s) differ" in text and "None" not in text and "…" not in text
 
 
-def test_diff_against_current_reads_the_latest_build(project, tiny_pdf):
+def _fake_analysis(path, data):
+    """Stand-in for a fresh analysis of the calc bytes: the fake_render results."""
+    calc = tomllib.loads(data.decode())
+    m, k = _number(calc["parameters"]["m"]), _number(calc["parameters"]["k"])
+    f_n = math.sqrt(k / m) / (2 * math.pi)   # Rao, Mechanical Vibrations, 5th ed., eq. 2.14
+    return {"results": {"f1": {"value": f_n, "unit": "Hz"}}, "passed": True}
+
+
+def test_diff_against_current_analyses_the_working_file_not_a_stale_build(project, tiny_pdf):
     _sign_both(project)
     revisions.issue(project, "C-1", "A", render=fake_render(tiny_pdf))
-    with pytest.raises(ArchiveError, match="no results.json to compare"):
+    with pytest.raises(ArchiveError, match="needs a fresh analysis"):
         revision_diff(project, "C-1", "A", "current")
-    site = project / "_site" / "C-1"
-    site.mkdir(parents=True)
-    fake_render(tiny_pdf)(project, "C-1", site, status="draft", revision="B",
-                          signoff={"prepared_by": "", "checked_by": ""})
-    rows = revision_diff(project, "C-1", "A", "current")["rows"]
-    assert all(r["change"] == "same" for r in rows)
+    stale = project / "_site" / "C-1"
+    stale.mkdir(parents=True)
+    shutil.copy(project / "issued" / "C-1" / "A" / "output" / "results.json", stale)
+    calc = project / "calcs" / "c1.toml"
+    calc.write_text(calc.read_text().replace('k = "1200000 N/m"', 'k = "1500000 N/m"')
+                    + '\n[[point_force]]\nposition = ["z"]\nforce = ["-F"]\n'
+                    + '\n[[reference]]\nid = "R1"\ntext = "Rao, Mechanical Vibrations"\n')
+    rows = {(r["section"], r["item"]): r for r in
+            revision_diff(project, "C-1", "A", "current", analyse=_fake_analysis)["rows"]}
+    assert rows[("inputs", "parameters.k")]["change"] == "changed"
+    assert rows[("results", "results.f1")]["change"] == "changed"
+    assert rows[("inputs", "point_force[1].force")] == {
+        "section": "inputs", "item": "point_force[1].force", "old": "(absent)",
+        "new": '["-F"]', "change": "added"}
+    assert rows[("references", "reference[R1].text")]["change"] == "added"
+
+
+def test_diff_covers_every_key_of_the_calc_file():
+    from calcsheaf.archive.diff import compare_sides
+    old = {"calc": {"number": "C-1"}, "assumption": [{"id": "A1", "text": "rigid", "open": True,
+                                                      "basis": "stiff"}],
+           "constraint": [{"name": "N", "equation": "x - y"}],
+           "time_history": {"duration": "5 s", "points": 4000},
+           "criterion": [{"name": "stress", "demand": "peak(s)", "capacity": "f_y"}]}
+    new = {"calc": {"number": "C-1"}, "assumption": [{"id": "A1", "text": "rigid", "open": False,
+                                                      "basis": "measured"}],
+           "constraint": [{"name": "N", "equation": "x + y"}],
+           "time_history": {"duration": "5 s", "points": 8000},
+           "criterion": [{"name": "stress", "demand": "1.5*peak(s)", "capacity": "f_y"}]}
+    changed = {r["item"] for r in compare_sides(old, {}, new, {}) if r["change"] != "same"}
+    assert changed == {"assumption[A1].open", "assumption[A1].basis", "constraint[N].equation",
+                       "time_history.points", "criterion[stress].demand"}
 
 
 def test_a_replaced_older_revision_breaks_the_chain(project, tiny_pdf):
@@ -455,17 +492,17 @@ def test_recompute_compares_within_tolerance(issued, tmp_path):
     folder = _copy(issued, tmp_path)
     frozen = json.loads((folder / "output" / "results.json").read_text())
 
-    def same(calc_file, project_toml):
-        return json.loads(json.dumps(frozen))
+    def same(folder, manifest):
+        return {"results": json.loads(json.dumps(frozen)), "files": None, "note": "results only"}
 
-    def drifted(calc_file, project_toml):
+    def drifted(folder, manifest):
         fresh = json.loads(json.dumps(frozen))
         fresh["results"]["f1"]["value"] *= 1 + 1e-4
-        return fresh
+        return {"results": fresh, "files": None, "note": "results only"}
 
     assert _failures(verify_revision(folder, recompute=same)) == []
     failures = dict(_failures(verify_revision(folder, recompute=drifted)))
-    assert "1 value(s) differ: results.f1.value" in failures["recompute"]
+    assert "1 value(s) differ: results.f1.value" in failures["recompute results"]
 
 
 def test_compare_results_tolerance_and_ignored_fields():
@@ -503,4 +540,4 @@ def test_changes_since_issue_compares_the_draft_with_the_latest_revision(issued)
     text = (folder / "inputs" / "calcs" / "c1.toml").read_text().replace("850 kg", "800 kg")
     diff = changes_since_issue(issued["root"], "C-1", text, results)
     changed = {r["item"] for r in diff["rows"] if r["change"] != "same"}
-    assert diff["a"] == "A" and changed == {"parameter m", "result f1"}
+    assert diff["a"] == "A" and changed == {"parameters.m", "results.f1"}

@@ -13,7 +13,7 @@ from calcsheaf.archive import revisions, signoffs
 from calcsheaf.archive.canonical import pretty_json
 from calcsheaf.archive.verify import verify_revision
 from calcsheaf.commands.keygen import keygen
-from calcsheaf.commands.verify import recompute_results
+from calcsheaf.commands.verify import recompute_revision, results_isolated
 
 CALC_TOML = """[calc]
 number = "C-7"
@@ -56,12 +56,13 @@ def analysed_render(pdf: bytes, *, calc_text: str | None = None):
     With `calc_text`, the results are computed from that text instead of the signed calc
     file: a build that published numbers of some other input.
     """
-    def render(project_root, calc_number, out_dir, *, status, revision, signoff):
-        calc_file = revisions.projectfiles.find_calc_file(project_root, calc_number)
+    def render(frozen_calc, project_root, out_dir, *, calc_number, status, revision, signoff,
+               history):
+        calc_file = Path(frozen_calc)
         if calc_text is not None:
-            calc_file = Path(out_dir) / "other.toml"
+            calc_file = Path(out_dir).parent / "other.toml"
             calc_file.write_text(calc_text)
-        results = recompute_results(calc_file, Path(project_root) / "project.toml")
+        results = results_isolated(calc_file, Path(project_root))
         if calc_text is not None:
             calc_file.unlink()
         results["calc"].update(revision=revision, status=status)
@@ -102,9 +103,13 @@ def test_recompute_agrees_with_an_honest_issue(signed_project, tiny_pdf):
     # Rao, Mechanical Vibrations, 5th ed., sec. 2.2, eq. (2.14)
     assert math.isclose(frozen["results"]["f1"]["value"], math.sqrt(1.2e6 / 850) / (2 * math.pi),
                         rel_tol=1e-9)
-    rows = verify_revision(folder, recompute=recompute_results)
+    rows = verify_revision(folder, recompute=recompute_revision)
     assert [r for r in rows if not r[1]] == []
-    assert ("recompute", True, "every result agrees within a relative 1e-06") in rows
+    assert ("recompute results", True, "every value of results.json agrees within a relative "
+            "1e-06 (analysed afresh from the frozen calc file)") in rows
+    assert [d for item, _, d in rows if item == "recompute pages"] == [
+        "not re-rendered: the revision has no render.json (issued by an older calcsheaf): only "
+        "results.json was recomputed"]
 
 
 def test_recompute_catches_results_of_other_inputs(signed_project, tiny_pdf):
@@ -113,5 +118,5 @@ def test_recompute_catches_results_of_other_inputs(signed_project, tiny_pdf):
                              render=analysed_render(tiny_pdf, calc_text=other))
     assert [r for r in verify_revision(folder) if not r[1]] == []     # hashes and signatures fine
     failures = {item: detail for item, ok, detail in
-                verify_revision(folder, recompute=recompute_results) if not ok}
-    assert "results.f1.value" in failures["recompute"]
+                verify_revision(folder, recompute=recompute_revision) if not ok}
+    assert "results.f1.value" in failures["recompute results"]

@@ -8,7 +8,9 @@ Layout of tests/bad_inputs/ (see its README.md):
   valid.toml                                   the good calc the cases were cut from
 
 An .expected file holds one required text per line (each must occur in the
-command's output); `exit N` sets the exit code (default 1); `#` starts a comment.
+command's output); `exit N` sets the exit code (default 1); `command build` runs
+`build` instead of `check`; `env NAME=VALUE` sets an environment variable for the
+run (e.g. a low template time limit); `#` starts a comment.
 Every case must also: exit non-zero, print no Python traceback, print a
 "Fix:" and name its file.  Most cases run `check` in-process (fast); a grouped
 subprocess run proves the real exit code and the absence of tracebacks, and
@@ -81,7 +83,7 @@ def expectations(path: Path) -> tuple[int, list[str]]:
     code, wanted = 1, []
     for raw in path.read_text(encoding="utf-8").splitlines():
         line = raw.strip()
-        if not line or line.startswith(("#", "command ")):
+        if not line or line.startswith(("#", "command ", "env ")):
             continue
         if line.startswith("exit "):
             code = int(line.split()[1])
@@ -94,6 +96,14 @@ def command_of(case: str) -> str:
     """`check` unless the case's .expected says `command build` (faults only a build meets)."""
     text = (CORPUS / "projects" / f"{case}.expected").read_text(encoding="utf-8")
     return "build" if "\ncommand build" in "\n" + text else "check"
+
+
+def environment_of(case: str) -> dict[str, str]:
+    """The `env NAME=VALUE` lines of a project case's .expected file."""
+    text = (CORPUS / "projects" / f"{case}.expected").read_text(encoding="utf-8")
+    pairs = [line.strip()[4:].partition("=") for line in text.splitlines()
+             if line.strip().startswith("env ")]
+    return {name.strip(): value.strip() for name, _, value in pairs}
 
 
 # ---- running the CLI ----------------------------------------------------------------
@@ -144,6 +154,8 @@ def test_bad_project_is_refused_by_check(case, tmp_path, run_cli, monkeypatch):
 @pytest.mark.parametrize("case", [c for c in PROJECT_CASES if command_of(c) == "build"])
 def test_bad_project_is_refused_by_build(case, tmp_path, run_cli, monkeypatch):
     monkeypatch.chdir(tmp_path)
+    for name, value in environment_of(case).items():
+        monkeypatch.setenv(name, value)
     project_case(tmp_path, case)
     code, out, err = run_cli("build", case)
     assert not list(tmp_path.rglob("calcsheaf-injected")), "a template ran a command"

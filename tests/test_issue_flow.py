@@ -54,3 +54,63 @@ def test_issue_verify_edit_and_reissue(tmp_path, people_env, capsys):
     assert main(["build", str(project)]) == 0
     index = (project / "_site" / "C-1" / "index.html").read_text()
     assert "superseded" in index
+
+
+def _pdf_text(path) -> str:
+    return subprocess.run(["pdftotext", str(path), "-"], capture_output=True, text=True).stdout
+
+
+def test_issued_pdf_site_and_revisions_tell_one_story(tmp_path, people_env, capsys):
+    """Revisions go forward, the site serves the signed PDF of an issued revision, the
+    signed PDF's history matches the site's, and verify --recompute re-renders what it
+    compares (a planted equation image in the project cache never reaches a signed PDF)."""
+    project = make_project(tmp_path / "p", {"a.toml": tiny("C-1")})
+    main(["keygen", "--name", "Ada Preparer", "--id", "ada", "--project", str(project)])
+    main(["keygen", "--name", "Ben Checker", "--id", "ben", "--project", str(project)])
+    assert main(["build", str(project)]) == 0
+    planted = sorted((project / ".calcsheaf-cache" / "equations").rglob("*.svg"))
+    assert planted, "the build caches equation images"
+    for svg in planted:
+        svg.write_text('<svg xmlns="http://www.w3.org/2000/svg"><text>PLANTED</text></svg>')
+
+    def sign_and_issue(rev, *extra):
+        assert main(["sign", str(project), "C-1", "--as", "preparer", "--person", "ada"]) == 0
+        assert main(["sign", str(project), "C-1", "--as", "checker", "--person", "ben"]) == 0
+        return main(["issue", str(project), "C-1", "--rev", rev, *extra])
+
+    assert sign_and_issue("A", "--description", "For comment") == 0
+    pdf_a = project / "issued" / "C-1" / "A" / "output" / "C-1.pdf"
+    assert "PLANTED" not in _pdf_text(pdf_a)
+    capsys.readouterr()
+    assert main(["verify", str(pdf_a.parent.parent), "--recompute"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("trusted: keys as listed in project.toml")
+    assert "recompute output/C-1.pdf: the signed PDF's unsigned first revision equals a fresh " \
+           "rendering" in out and "recompute output/index.html: equals a fresh rendering" in out
+
+    (project / "calcs" / "a.toml").write_text(tiny("C-1", 12.0))
+    for bad, why in (("current", "reserved"), ("A", "already issued"), ("a", "does not come after"),
+                     ("B\n", "not allowed"), ("../B", "not allowed")):
+        assert sign_and_issue(bad) == 1
+        assert why in capsys.readouterr().err
+    assert sign_and_issue("B", "--description", "Heavier mass") == 0
+
+    assert main(["build", str(project)]) == 0
+    site_pdf = project / "_site" / "C-1" / "C-1.pdf"
+    signed_b = project / "issued" / "C-1" / "B" / "output" / "C-1.pdf"
+    assert site_pdf.read_bytes() == signed_b.read_bytes()
+    printed = _pdf_text(signed_b)
+    assert "superseded" in printed and "Heavier mass" in printed and "For comment" in printed
+    assert "Changes since revision A" in printed and "Revision B" in printed
+    page = (project / "_site" / "C-1" / "index.html").read_text()
+    assert "superseded" in page and "Heavier mass" in page
+
+    (project / "calcs" / "a.toml").write_text(tiny("C-1", 14.0))
+    assert main(["build", str(project)]) == 0
+    results = json.loads((project / "_site" / "C-1" / "results.json").read_text())
+    assert (results["calc"]["status"], results["calc"]["revision"]) == ("draft", "C")
+    assert "DRAFT" in _pdf_text(site_pdf).upper()
+    capsys.readouterr()
+    assert main(["diff", str(project), "C-1", "B", "current"]) == 0
+    shown = capsys.readouterr().out
+    assert "None" not in shown and "no differences" not in shown

@@ -25,7 +25,8 @@ from .mechanics.equilibrium import find_equilibrium
 from .mechanics.lagrange import derive
 from .software import versions
 from .verification.checks import judge_criteria, run_crosschecks
-from .verification.queries import History, QueryContext
+from .verification.lagrange_check import equations_check
+from .verification.queries import History, QueryContext, output_gains
 
 
 def analyse_calc_file(path: Path, project_toml: Path | None = None) -> m.CalcReport:
@@ -33,9 +34,12 @@ def analyse_calc_file(path: Path, project_toml: Path | None = None) -> m.CalcRep
     return analyse(load_calc(Path(path)))
 
 
-def failed_report(path: Path, error: CalcsheafError) -> m.CalcReport:
-    """The report of a calc that could not be loaded or derived at all."""
-    raw = path.read_bytes() if path.is_file() else b""
+def failed_report(path: Path, error: CalcsheafError, raw: bytes | None = None) -> m.CalcReport:
+    """The report of a calc that could not be loaded or derived at all.
+
+    `raw`: the bytes of the calc file as read for this command (None reads the file)."""
+    if raw is None:
+        raw = path.read_bytes() if path.is_file() else b""
     return m.CalcReport(number=path.stem, title="(calc file could not be read)", source_path=path,
                         source_text=raw.decode("utf-8", "replace"),
                         input_hash=hashlib.sha256(raw).hexdigest(), error=error)
@@ -56,6 +60,7 @@ def analyse(spec: CalcSpec) -> m.CalcReport:
     stage("solve")
     checks = [m.Check("units", "dimensional consistency", True,
                       "every energy, force, output and query expression checked with its units")]
+    checks.append(equations_check(spec, system))
     ctx = QueryContext(spec=spec, derivation=derivation, params=params, system=system)
 
     _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks)
@@ -75,7 +80,7 @@ def analyse(spec: CalcSpec) -> m.CalcReport:
 
 
 def _base_report(spec: CalcSpec) -> m.CalcReport:
-    raw = spec.path.read_bytes()
+    raw = spec.source_text.encode("utf-8")     # the bytes loaded (UTF-8 round-trips exactly)
     return m.CalcReport(
         number=spec.number, title=spec.title, source_path=spec.path, source_text=spec.source_text,
         input_hash=hashlib.sha256(raw).hexdigest(), revision=spec.revision, purpose=spec.purpose,
@@ -124,6 +129,10 @@ def _check_initial_constraints(spec, system, q0, qd0) -> None:
 
 
 def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) -> None:
+    """Equilibrium (static, steady motion or time-frozen), linearisation, stability and modes.
+
+    An unstable equilibrium fails the calc unless [analysis] expect_unstable = true
+    (then a stable one fails it)."""
     if not spec.analysis.equilibrium:
         return
     try:
@@ -134,20 +143,29 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         return
     names = spec.coordinate_names
     try:
-        linear = lin.linearise(derivation, ctx.params, point.q, point.lambdas)
-        stable, verdict = lin.stability(linear)
+        linear = lin.linearise(derivation, ctx.params, point.q, point.lambdas, point.qd, point.time)
+        stability = lin.stability(linear)
         modes = lin.modes(linear, names) if spec.analysis.modes else ()
     except (AnalysisError, np.linalg.LinAlgError) as exc:
         problem = getattr(exc, "problem", f"the linearised system cannot be solved ({exc})")
-        linear, stable, verdict, modes = None, False, f"stability not determined: {problem}", ()
+        linear, modes = None, ()
+        stability = lin.Stability(False, f"stability not determined: {problem}", float("nan"))
+    expect = spec.analysis.expect_unstable
     report.equilibrium = m.Equilibrium(
         values={c.name: float(v) / c.factor for c, v in zip(spec.coordinates, point.q)},
-        units={c.name: c.unit for c in spec.coordinates}, stable=stable, verdict=verdict,
-        residual=point.residual,
-        multipliers={c.name: float(v) / c.factor for c, v in zip(spec.constraints, point.lambdas)})
+        units={c.name: c.unit for c in spec.coordinates}, stable=stability.stable,
+        verdict=stability.verdict, residual=point.residual,
+        multipliers={c.name: float(v) / c.factor for c, v in zip(spec.constraints, point.lambdas)},
+        kind=point.kind, time_s=point.time, note=point.note,
+        velocities={c.name: float(v) / c.factor for c, v in zip(spec.coordinates, point.qd) if v != 0},
+        growth_rate_per_s=stability.growth_rate, doubling_time_s=stability.doubling_time,
+        expected_unstable=expect,
+        multiplier_units={c.name: c.unit for c in spec.constraints})
     ctx.equilibrium = {n: float(v) for n, v in zip(names, point.q)}
-    checks.append(m.Check("equilibrium", "static equilibrium", True,
-                          f"found, residual {point.residual:.2e}; {verdict}"))
+    checks.append(m.Check("equilibrium", "static equilibrium" if point.kind != "steady motion"
+                          else "steady motion (relative equilibrium)", True,
+                          f"found ({point.kind}, t = {point.time:g} s), residual {point.residual:.2e}; "
+                          f"{point.note}; {stability.verdict}"))
     if linear is None:
         if spec.analysis.modes:
             error = AnalysisError(problem, file=spec.path, key="analysis.modes",
@@ -155,12 +173,37 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
                                   fix="set [analysis] modes = false, or smooth the offending term")
             checks.append(m.Check("modes", "linearisation and modes", False, error.message))
         return
+    checks.append(_stability_check(spec, stability))
     ctx.linear, ctx.linear_point = linear, point.q
     report.linearisation = linear.full
     report.modes = ctx.modes = modes
 
 
+def _stability_check(spec, stability) -> m.Check:
+    """Passes when the equilibrium is as stable as the calc expects ([analysis] expect_unstable)."""
+    expect = spec.analysis.expect_unstable
+    where = f"{spec.path}:{spec.line('analysis') or spec.line('energy')}: analysis.expect_unstable"
+    if stability.stable and not expect:
+        return m.Check("stability", "stability of the equilibrium", True, stability.verdict)
+    if not stability.stable and expect:
+        return m.Check("stability", "stability of the equilibrium", True,
+                       f"{stability.verdict} (expected: [analysis] expect_unstable = true)")
+    if expect:
+        return m.Check("stability", "stability of the equilibrium", False,
+                       f"{where}: the calc expects an unstable equilibrium but found {stability.verdict}. "
+                       "Fix: check the model, or remove expect_unstable from [analysis]")
+    return m.Check("stability", "stability of the equilibrium", False,
+                   f"{where}: {stability.verdict}. Fix: change the design so that it is stable, or, "
+                   "when the calc is about an unstable state (e.g. before a control acts), set "
+                   "[analysis] expect_unstable = true")
+
+
 def _frequency_response(spec, ctx: QueryContext, report) -> None:
+    """Steady amplitudes and phases over the range, each in its display unit (mm, deg, kN).
+
+    Outputs that have no linear response (they depend on time or a constraint force)
+    or whose linearisation about the equilibrium is zero are listed as omitted, not plotted.
+    """
     fr = spec.frequency_response
     if fr is None or ctx.linear is None:
         return
@@ -172,16 +215,17 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
     freqs = frequency.grid(fr.start_hz, fr.stop_hz, fr.points, fr.spacing)
     ctx.freqs = freqs
     X = frequency.sweep(ctx.linear, force, freqs)
-    amplitude, phase, units = {}, {}, {}
+    amplitude, phase, units, peaks, omitted = {}, {}, {}, {}, {}
     for c, row in zip(spec.coordinates, X):
-        amplitude[c.name] = np.abs(row)
-        phase[c.name] = np.degrees(np.angle(row))
-        units[c.name] = c.si_unit
+        _response_row(c, row, ctx.amplitude_function(c.name), freqs,
+                      amplitude, phase, units, peaks)
     for index, o in enumerate(spec.outputs, start=1):
         try:
+            if output_gains(ctx, o.name) is None:
+                omitted[o.name] = "depends on time or a constraint force: no linear response"
+                continue
             amp = ctx.amplitude_function(o.name)
-        except AnalysisError:
-            continue
+            values = np.array([amp.complex(f) for f in freqs])
         except (TypeError, ValueError, ArithmeticError) as exc:   # e.g. acos(x/L) with |x| > L
             key = f"output[{index}].expr"
             raise AnalysisError(
@@ -189,19 +233,30 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
                 f"response is linearised ({exc})", file=str(spec.path), line=spec.line(key), key=key,
                 fix="keep every log, sqrt, asin and acos of the output defined at the rest position, "
                     "or remove [frequency_response]") from None
-        values = np.array([amp.complex(f) for f in freqs]) / o.factor
-        amplitude[o.name] = np.abs(values)
-        phase[o.name] = np.degrees(np.angle(values))
-        units[o.name] = o.unit
+        if not np.any(np.abs(values) > 0):
+            omitted[o.name] = "linearises to zero about the equilibrium (no first-order response)"
+            continue
+        _response_row(o, values, amp, freqs, amplitude, phase, units, peaks)
     report.frequency_response = m.FrequencyResponse(
         frequency_hz=freqs, amplitude=amplitude, phase_deg=phase, units=units,
-        excitation={n: text for n, _, text in fr.force})
+        excitation={n: text for n, _, text in fr.force}, peaks=peaks, omitted=omitted)
+
+
+def _response_row(item, complex_si, amplitude_at, freqs, amplitude, phase, units, peaks) -> None:
+    """One coordinate or output: |X| and its peak in the display unit, phase in degrees."""
+    magnitude = np.abs(complex_si)
+    amplitude[item.name] = magnitude / item.factor
+    phase[item.name] = np.degrees(np.angle(complex_si))
+    units[item.name] = item.unit
+    best, where = frequency.peak(amplitude_at, freqs, magnitude)
+    peaks[item.name] = m.ResponsePeak(amplitude=best / item.factor, frequency_hz=where)
 
 
 def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> None:
     th = spec.time_history
     powers = simulate.power_functions(derivation, ctx.params)
-    first, second = simulate.integrate(system, th, np.concatenate([q0, qd0]), powers)
+    first, second, grid = simulate.integrate(system, th, np.concatenate([q0, qd0]), powers,
+                                             linear_hz=_highest_linear_hz(ctx))
     for run, role in ((first, "primary"), (second, "independent")):
         s = run.solver
         detail = f"status {s.status}: {s.message}; {s.nfev} evaluations"
@@ -222,12 +277,16 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
     LAM = np.zeros((system.m, len(t)))
     for k in range(len(t)):
         QDD[:, k], LAM[:, k] = system.accelerations(t[k], Q[:, k], QD[:, k])
-    ctx.history = History(t=t, Q=Q, QD=QD, QDD=QDD, LAM=LAM, dense=first.dense)
+    ctx.history = History(t=t, Q=Q, QD=QD, QDD=QDD, LAM=LAM, dense=first.dense,
+                          grid=simulate.step_grid(first, t))
     agreement = simulate.agreement(first, second, n) if second.solver.success else float("nan")
     if second.solver.success:
         checks.append(m.Check("integrators", "two integrators agree", agreement <= th.agreement_tolerance,
                               f"largest normalised difference {agreement:.2e} "
-                              f"(tolerance {th.agreement_tolerance:g})"))
+                              f"(tolerance {th.agreement_tolerance:g}) at {len(grid.t)} times: the samples, "
+                              f"every primary step and {simulate.POINTS_PER_PERIOD} per period of "
+                              f"{grid.fastest_hz:.4g} Hz ({grid.basis} fastest frequency)"
+                              + (f", uniform part capped at {simulate.MAX_UNIFORM}" if grid.capped else "")))
     drift = None
     if system.m:
         G = np.array([system.constraint_values(tk, Q[:, k]) for k, tk in enumerate(t)])
@@ -236,19 +295,75 @@ def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> Non
         checks.append(m.Check("constraint", "constraint drift", drift <= 1e-6 * scale,
                               f"largest |g| = {drift:.2e} (tolerance {1e-6 * scale:.2e})"))
     series = _series(spec, ctx, Q, QD, LAM)
+    note = _sampling_note(spec, ctx, series, grid)
+    checks.append(m.Check("sampling", "samples resolve the motion", True, note or (
+        f"{th.points} samples, at least {simulate.POINTS_PER_PERIOD} per period of {grid.fastest_hz:.4g} Hz "
+        f"({grid.basis} fastest frequency); extremes from the dense solution")))
     report.time_history = m.TimeHistory(t=t, series=tuple(series), primary=first.solver,
                                         secondary=second.solver, agreement=agreement,
                                         agreement_tolerance=th.agreement_tolerance,
-                                        constraint_drift=drift)
+                                        constraint_drift=drift, comparison_points=len(grid.t),
+                                        fastest_hz=grid.fastest_hz, fastest_basis=grid.basis,
+                                        sampling_note=note)
     report.energy = audit(derivation, ctx.params, t, Q, QD, QDD, LAM, Y[2 * n], Y[2 * n + 1],
-                          spec.analysis.energy_tolerance)
+                          spec.analysis.energy_tolerance, state=first.dense)
     checks.append(m.Check("energy", "energy audit", report.energy.passed,
                           f"largest relative residual {report.energy.max_relative_residual:.2e} "
                           f"(tolerance {report.energy.tolerance:g})"))
-    report.outputs = tuple(_summary(o, ctx.series(o.expr)) for o in spec.outputs) + tuple(
-        _summary(c, LAM[i], label=c.label or "constraint force") for i, c in enumerate(spec.constraints))
+    report.outputs = tuple(_summary(o, ctx.extremes(o.expr)) for o in spec.outputs) + tuple(
+        _summary(c, ctx.extremes(derivation.lambdas[i]), label=c.label or "constraint force")
+        for i, c in enumerate(spec.constraints))
     if any(not np.isfinite([s.peak, s.max, s.min]).all() for s in report.outputs):
         checks.append(m.Check("outputs", "outputs finite", False, "an output is not finite"))
+
+
+def _highest_linear_hz(ctx) -> float:
+    """Highest natural frequency of the linearised modes, Hz; 0 without modes."""
+    values = [float(md.natural_frequency_hz) for md in ctx.modes]
+    values = [v for v in values if np.isfinite(v)]
+    return max(values, default=0.0)
+
+
+SAMPLING_DEVIATION = 0.01         # coarse when the samples miss more than this fraction of a range
+
+
+def _sampling_note(spec, ctx, series, grid) -> str:
+    """'' when the samples show the motion; otherwise the coarse-sampling note for the page and `check`.
+
+    Coarse: fewer than POINTS_PER_PERIOD samples per period of the fastest
+    frequency seen, or a series whose samples, joined by straight lines, depart
+    from the dense solution by more than SAMPLING_DEVIATION of its range.
+    """
+    th = spec.time_history
+    fine = ctx.fine()
+    dt = th.duration / (th.points - 1)
+    per_period = 1.0 / (grid.fastest_hz * dt) if grid.fastest_hz > 0 else np.inf
+    worst, where = 0.0, ""
+    for s, values in zip(series, _fine_values(spec, ctx, fine)):
+        span = float(np.max(values) - np.min(values))
+        if span <= 1e-12 * max(1.0, float(np.max(np.abs(values)))):
+            continue
+        gap = float(np.max(np.abs(values - np.interp(fine.t, ctx.history.t, s.values)))) / span
+        if gap > worst:
+            worst, where = gap, s.name
+    if per_period >= simulate.POINTS_PER_PERIOD and worst <= SAMPLING_DEVIATION:
+        return ""
+    wanted = max(int(np.ceil(simulate.POINTS_PER_PERIOD * grid.fastest_hz * th.duration)) + 1,
+                 int(np.ceil((th.points - 1) * np.sqrt(max(worst, 1e-300) / SAMPLING_DEVIATION))) + 1)
+    return (f"coarse sampling: {th.points} samples (every {dt:.3g} s) give {per_period:.3g} per period "
+            f"of the fastest frequency seen, {grid.fastest_hz:.4g} Hz ({grid.basis}); between samples "
+            f"the plotted record departs from the solution by up to {100 * worst:.3g} % of the range "
+            f"of {where}. Peaks, max, min, criteria and the integrator comparison are taken from the "
+            f"dense solution; set [time_history] points = {wanted} or more for plots that show the motion")
+
+
+def _fine_values(spec, ctx, fine) -> list[np.ndarray]:
+    """The series of `_series`, in display units, on the fine grid."""
+    out = [fine.Q[i] / c.factor for i, c in enumerate(spec.coordinates)]
+    out += [fine.QD[i] / c.factor for i, c in enumerate(spec.coordinates)]
+    out += [fine.LAM[i] / c.factor for i, c in enumerate(spec.constraints)]
+    out += [ctx.series(o.expr, fine) / o.factor for o in spec.outputs]
+    return out
 
 
 def _series(spec, ctx, Q, QD, LAM) -> list[m.Series]:
@@ -265,12 +380,14 @@ def _series(spec, ctx, Q, QD, LAM) -> list[m.Series]:
     return out
 
 
-def _summary(o, values: np.ndarray, label: str | None = None) -> m.OutputSummary:
-    """Peak, max and min of an output or constraint force, in its display unit."""
-    v = values / o.factor
+def _summary(o, found, label: str | None = None) -> m.OutputSummary:
+    """Peak, max and min of an output or constraint force from the dense solution, in its display unit.
+
+    `found` is a verification.extremes.Extremes in SI (display factors are positive).
+    """
     return m.OutputSummary(name=o.name, unit=o.unit, label=o.label if label is None else label,
-                           peak=float(np.max(np.abs(v))),
-                           max=float(np.max(v)), min=float(np.min(v)))
+                           peak=found.peak / o.factor, max=found.max / o.factor, min=found.min / o.factor,
+                           t_peak=found.t_peak, t_max=found.t_max, t_min=found.t_min)
 
 
 def _results(spec, ctx: QueryContext, report, checks) -> None:

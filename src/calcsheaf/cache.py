@@ -1,21 +1,42 @@
-"""Content-addressed build cache under PROJECT/.calcsheaf-cache/.
+"""Content-addressed, authenticated build cache under PROJECT/.calcsheaf-cache/.
 
 Keys are SHA-256 over the calc file's bytes, the tool's code fingerprint
 (source and theme, so a new version never trusts old entries) and whatever
-else the entry depends on.  Entries are pickles with a checksum; a corrupt
-or unreadable entry is treated as missing and rebuilt.
+else the entry depends on.
+
+The project folder may come from someone else, so an entry is data that can
+neither run code nor be forged:
+
+- format: a JSON header (plain data only) followed by raw file bytes; nothing
+  is unpickled or evaluated when an entry is read;
+- authentication: HMAC-SHA256 over the entry's kind, key and body with a
+  secret of this user kept outside every project (`cache_key_file()`, created
+  with mode 0600 on first use).  An entry without a valid MAC (made by another
+  user or machine, altered, truncated) is ignored and rebuilt, and reported
+  once per command (`Cache.notes`).
+
+When the secret cannot be read or made, the cache is off (every calc is
+analysed afresh) and the reason is one of the notes.
 """
 
 from __future__ import annotations
 
 import hashlib
+import hmac
+import json
 import os
-import pickle
+import secrets
+import stat
 from pathlib import Path
 
 from .fingerprint import code_fingerprint
 
 FOLDER = ".calcsheaf-cache"
+SUFFIX = ".entry"
+KEY_BYTES = 32
+KEY_FILE_ENV = "CALCSHEAF_CACHE_KEY_FILE"
+_MAGIC = b"calcsheaf-cache-2\n"
+_MAC_BYTES = hashlib.sha256().digest_size
 
 
 def key(*parts: bytes | str) -> str:
@@ -26,37 +47,157 @@ def key(*parts: bytes | str) -> str:
     return digest.hexdigest()
 
 
+def cache_key_file() -> Path:
+    """This user's cache secret: $CALCSHEAF_CACHE_KEY_FILE, else
+    $XDG_CONFIG_HOME/calcsheaf/cache.key, else ~/.config/calcsheaf/cache.key."""
+    override = os.environ.get(KEY_FILE_ENV)
+    if override:
+        return Path(override)
+    base = os.environ.get("XDG_CONFIG_HOME") or str(Path.home() / ".config")
+    return Path(base) / "calcsheaf" / "cache.key"
+
+
+class KeyFileError(Exception):
+    """The cache secret cannot be used; the message says why and what to do."""
+
+
+def load_secret(path: Path) -> bytes:
+    """The secret in `path`, made (random, mode 0600) when the file does not exist yet."""
+    try:
+        return _read_secret(path)
+    except FileNotFoundError:
+        pass
+    try:
+        path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
+        fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    except FileExistsError:            # made by a concurrent build a moment ago
+        return _read_secret(path)
+    except OSError as exc:
+        raise KeyFileError(f"cannot create the cache key {path} ({exc.strerror})") from None
+    try:
+        os.write(fd, secrets.token_bytes(KEY_BYTES))
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+    return _read_secret(path)
+
+
+def _read_secret(path: Path) -> bytes:
+    try:
+        fd = os.open(path, os.O_RDONLY | os.O_NOFOLLOW)
+    except FileNotFoundError:
+        raise
+    except OSError as exc:
+        raise KeyFileError(f"cannot read the cache key {path} ({exc.strerror})") from None
+    try:
+        info = os.fstat(fd)
+        if not stat.S_ISREG(info.st_mode):
+            raise KeyFileError(f"the cache key {path} is not a regular file")
+        if info.st_uid != os.getuid() or info.st_mode & 0o077:
+            raise KeyFileError(f"the cache key {path} is readable or writable by other users "
+                               f"(mode {stat.S_IMODE(info.st_mode):o}) or owned by another user")
+        data = os.read(fd, KEY_BYTES + 1)
+    finally:
+        os.close(fd)
+    if len(data) != KEY_BYTES:
+        raise KeyFileError(f"the cache key {path} is {len(data)} bytes long, not {KEY_BYTES}")
+    return data
+
+
 class Cache:
-    def __init__(self, project_root: Path) -> None:
+    """Authenticated entries: `put(kind, entry, meta, files)`, `get(kind, entry)`.
+
+    `meta` is JSON-safe data (dicts, lists, str, int, float, bool, None);
+    `files` maps names to bytes.  `notes` collects what the user should hear
+    once: authentication failures and a cache that is off.
+    """
+
+    def __init__(self, project_root: Path, secret: bytes | None = None) -> None:
         self.folder = Path(project_root) / FOLDER
+        self.notes: list[str] = []
+        self.rejected: list[Path] = []
+        self._secret = secret
+        if secret is None:
+            try:
+                self._secret = load_secret(cache_key_file())
+            except KeyFileError as exc:
+                self.notes.append(f"the build cache is off: {exc}. Fix: remove the file so that "
+                                  f"calcsheaf makes a new one (mode 0600), or set {KEY_FILE_ENV} "
+                                  "to a file of your own")
+
+    @property
+    def enabled(self) -> bool:
+        return self._secret is not None
 
     def _path(self, kind: str, entry: str) -> Path:
-        return self.folder / kind / f"{entry}.pickle"
+        return self.folder / kind / f"{entry}{SUFFIX}"
 
-    def get(self, kind: str, entry: str):
+    def _mac(self, kind: str, entry: str, body: bytes) -> bytes:
+        label = f"{kind}\0{entry}\0".encode()
+        return hmac.new(self._secret, _MAGIC + label + body, hashlib.sha256).digest()
+
+    def get(self, kind: str, entry: str) -> tuple[dict, dict[str, bytes]] | None:
+        """(meta, files) of an authentic entry; None when missing, unreadable or not authentic."""
+        if not self.enabled:
+            return None
         path = self._path(kind, entry)
         try:
             raw = path.read_bytes()
         except OSError:
             return None
-        checksum, body = raw[:32], raw[32:]
-        if hashlib.sha256(body).digest() != checksum:
+        head, mac, body = raw[:len(_MAGIC)], raw[len(_MAGIC):len(_MAGIC) + _MAC_BYTES], \
+            raw[len(_MAGIC) + _MAC_BYTES:]
+        if head != _MAGIC or not hmac.compare_digest(mac, self._mac(kind, entry, body)):
+            self.rejected.append(path)
             return None
         try:
-            return pickle.loads(body)
-        except Exception:  # a corrupt entry is a miss, never trusted
+            return _unpack(body)
+        except (ValueError, KeyError, TypeError):   # authentic but unreadable: a miss
             return None
 
-    def put(self, kind: str, entry: str, value) -> None:
-        body = pickle.dumps(value, protocol=pickle.HIGHEST_PROTOCOL)
+    def put(self, kind: str, entry: str, meta: dict, files: dict[str, bytes]) -> None:
+        """Store an entry atomically; a cache that cannot be written is skipped silently."""
+        if not self.enabled:
+            return
+        body = _pack(meta, files)
         path = self._path(kind, entry)
         try:
             path.parent.mkdir(parents=True, exist_ok=True)
-            temp = path.with_suffix(f".tmp-{os.getpid()}")
-            temp.write_bytes(hashlib.sha256(body).digest() + body)
+            temp = path.with_name(f"{path.name}.tmp-{os.getpid()}")
+            temp.write_bytes(_MAGIC + self._mac(kind, entry, body) + body)
             os.replace(temp, path)
         except OSError:
             pass
+
+    def report(self) -> list[str]:
+        """The notes for the user, each once (authentication failures counted together)."""
+        notes = list(dict.fromkeys(self.notes))
+        if self.rejected:
+            notes.append(f"ignored {len(self.rejected)} entr{'y' if len(self.rejected) == 1 else 'ies'} "
+                         f"of {self.folder} that failed authentication (made by another user or "
+                         "altered); they were rebuilt from the inputs")
+        return notes
+
+
+def _pack(meta: dict, files: dict[str, bytes]) -> bytes:
+    names = sorted(files)
+    header = json.dumps({"meta": meta, "files": [[n, len(files[n])] for n in names]},
+                        sort_keys=True, separators=(",", ":")).encode("utf-8")
+    return len(header).to_bytes(8, "big") + header + b"".join(files[n] for n in names)
+
+
+def _unpack(body: bytes) -> tuple[dict, dict[str, bytes]]:
+    size = int.from_bytes(body[:8], "big")
+    header = json.loads(body[8:8 + size].decode("utf-8"))
+    files, offset = {}, 8 + size
+    for name, length in header["files"]:
+        if not isinstance(name, str) or not isinstance(length, int) or offset + length > len(body):
+            raise ValueError("malformed cache entry")
+        files[name] = body[offset:offset + length]
+        offset += length
+    if offset != len(body) or not isinstance(header["meta"], dict):
+        raise ValueError("malformed cache entry")
+    return header["meta"], files
 
 
 def tree_digest(root: Path, names: tuple[str, ...]) -> str:

@@ -82,12 +82,16 @@ def make_parser() -> argparse.ArgumentParser:
     p.add_argument("--description", default="")
     p = sub.add_parser("verify", help="check hashes, signatures and roles of issued revisions or a site")
     p.add_argument("path", type=Path, help="an issued/CALC/REV folder, a built _site, or a project folder")
-    p.add_argument("--recompute", action="store_true", help="also re-run the calc from its frozen inputs")
+    p.add_argument("--recompute", action="store_true",
+                   help="also re-analyse and re-render the calc from its frozen inputs")
+    p.add_argument("--trust", type=Path, default=None, metavar="KEYRING",
+                   help="a keyring (TOML [[person]] id, name, public_key) kept outside the "
+                        "project; every signer must be in it")
     p = sub.add_parser("diff", help="what changed between two revisions (REV_B may be 'current')")
     p.add_argument("project", type=Path, help="project folder (the one holding project.toml)")
     p.add_argument("calc", help="calc number, e.g. C-101")
     p.add_argument("rev_a", help="older revision, e.g. A")
-    p.add_argument("rev_b", help="newer revision, or 'current' for the latest build")
+    p.add_argument("rev_b", help="newer revision, or 'current' for the working calc file")
     return parser
 
 
@@ -118,7 +122,7 @@ def _run(args) -> int:
         return issue(args.project, args.calc, args.rev, description=args.description)
     if args.command == "verify":
         from .commands.verify import verify
-        return verify(args.path, recompute=args.recompute)
+        return verify(args.path, recompute=args.recompute, trust=args.trust)
     if args.command == "diff":
         from .commands.diff import diff
         return diff(args.project, args.calc, args.rev_a, args.rev_b)

@@ -8,7 +8,6 @@ calc fails alone with a clear message, while the rest of the project builds.
 from __future__ import annotations
 
 import multiprocessing as mp
-import os
 import pickle
 import resource
 import signal
@@ -45,8 +44,14 @@ class _Stage:
         self.name = name
 
 
-def _child(fn: Callable, path: Path, conn) -> None:
+def path_of(item) -> Path:
+    """The calc file an item of work stands for: the item itself, or its `path`."""
+    return getattr(item, "path", item)
+
+
+def _child(fn: Callable, item, conn) -> None:
     global _stage_channel
+    path = path_of(item)
     _stage_channel = conn
     signal.signal(signal.SIGTERM, signal.SIG_DFL)   # a worker stops at once when told to
     try:
@@ -56,7 +61,7 @@ def _child(fn: Callable, path: Path, conn) -> None:
     warnings.simplefilter("ignore")          # numerical warnings become checks, not noise
     np.seterr(all="ignore")
     try:
-        result = fn(path)
+        result = fn(item)
     except MemoryError:
         result = _Failure(_limit_error(path, "ran out of its memory limit of "
                                        f"{MEMORY_LIMIT_BYTES / 2 ** 30:g} GiB"))
@@ -85,12 +90,14 @@ def _limit_error(path: Path, what: str) -> AnalysisError:
                              "or raise CALCSHEAF_CALC_TIME_LIMIT / CALCSHEAF_CALC_MEMORY_LIMIT_GB")
 
 
-def run_isolated(fn: Callable, paths: list[Path], jobs: int, on_failure: Callable,
+def run_isolated(fn: Callable, paths: list, jobs: int, on_failure: Callable,
                  progress: Callable[[Path, str], None] | None = None) -> list:
-    """fn(path) for every path, at most `jobs` at once, each in its own process.
+    """fn(item) for every item of `paths`, at most `jobs` at once, each in its own process.
 
+    An item is a calc file's Path or an object with a `path` (e.g. the path and the
+    bytes read from it, which the forked process inherits without a second read).
     A process that dies, overruns TIME_LIMIT_S or exhausts its memory gives
-    on_failure(path, error) instead of a result.  Results keep the order of `paths`.
+    on_failure(item, error) instead of a result.  Results keep the order of `paths`.
     """
     ctx = mp.get_context("fork")
     results: dict[int, object] = {}
@@ -110,13 +117,14 @@ def run_isolated(fn: Callable, paths: list[Path], jobs: int, on_failure: Callabl
 def _schedule(ctx, fn, pending, running, results, jobs, on_failure, progress) -> None:
     while pending or running:
         while pending and len(running) < max(1, jobs):
-            i, path = pending.pop(0)
+            i, item = pending.pop(0)
             receive, send = ctx.Pipe(duplex=False)
-            proc = ctx.Process(target=_child, args=(fn, path, send), daemon=True)
+            proc = ctx.Process(target=_child, args=(fn, item, send), daemon=True)
             proc.start()
             send.close()
-            running[i] = (proc, receive, time.monotonic(), path)
-        for i, (proc, receive, started, path) in list(running.items()):
+            running[i] = (proc, receive, time.monotonic(), item)
+        for i, (proc, receive, started, item) in list(running.items()):
+            path = path_of(item)
             if receive.poll(0.02):
                 try:
                     value = pickle.loads(receive.recv_bytes())
@@ -124,16 +132,16 @@ def _schedule(ctx, fn, pending, running, results, jobs, on_failure, progress) ->
                         if progress:
                             progress(path, value.name)
                         continue
-                    results[i] = on_failure(path, value.error) if isinstance(value, _Failure) else value
+                    results[i] = on_failure(item, value.error) if isinstance(value, _Failure) else value
                 except (EOFError, OSError, pickle.UnpicklingError):
-                    results[i] = on_failure(path, _limit_error(path, "process ended unexpectedly"))
+                    results[i] = on_failure(item, _limit_error(path, "process ended unexpectedly"))
                 proc.join()
             elif not proc.is_alive():
-                results[i] = on_failure(path, _limit_error(path, f"process ended (exit code {proc.exitcode})"))
+                results[i] = on_failure(item, _limit_error(path, f"process ended (exit code {proc.exitcode})"))
             elif time.monotonic() - started > TIME_LIMIT_S:
                 proc.kill()
                 proc.join()
-                results[i] = on_failure(path, _limit_error(path, f"exceeded its time limit of {TIME_LIMIT_S:g} s"))
+                results[i] = on_failure(item, _limit_error(path, f"exceeded its time limit of {TIME_LIMIT_S:g} s"))
             else:
                 continue
             receive.close()

@@ -93,12 +93,21 @@ class Check:
 
 @dataclass(frozen=True)
 class Equilibrium:
-    values: dict[str, float]          # coordinate -> value in its declared unit
+    values: dict[str, float]          # coordinate -> value in its declared unit (at `time_s`)
     units: dict[str, str]             # coordinate -> declared unit (e.g. "mm", "deg")
     stable: bool
     verdict: str                      # e.g. "stable: stiffness positive definite"
     residual: float                   # largest |generalised force| left at the solution
     multipliers: dict[str, float] = field(default_factory=dict)   # constraint forces at rest, display unit
+    kind: str = "static"              # static, steady motion, static, time frozen
+    time_s: float = 0.0               # the time loads and constraints are taken at, s
+    note: str = ""                    # how the state was defined (velocities, time)
+    velocities: dict[str, float] = field(default_factory=dict)    # prescribed velocities of a steady
+                                      # motion, coordinate -> value in its declared unit per second
+    growth_rate_per_s: float = float("nan")   # largest growth rate of an unstable equilibrium, 1/s
+    doubling_time_s: float = float("nan")     # ln 2 / growth rate, s
+    expected_unstable: bool = False   # [analysis] expect_unstable
+    multiplier_units: dict[str, str] = field(default_factory=dict)  # constraint -> that display unit
 
 
 @dataclass(frozen=True)
@@ -109,7 +118,14 @@ class Mode:
     natural_frequency_rad_s: float
     damping_ratio: float
     damped_frequency_hz: float
-    shape: dict[str, float]           # largest component normalised to 1
+    shape: dict[str, float]           # largest component normalised to 1 (real part of a complex shape)
+    # All of f_n = |λ|/2π, ζ = −Re λ/|λ| and f_d = |Im λ|/2π come from the same root λ;
+    # f_n and ζ are NaN for a real growing root (no frequency), ζ is NaN for a rigid-body mode.
+    roots: tuple[tuple[float, float], ...] = ()     # the mode's two roots (Re, Im), 1/s
+    growth_rate_per_s: float = float("nan")         # Re λ > 0 of an unstable mode, 1/s
+    doubling_time_s: float = float("nan")           # ln 2 / growth rate, s
+    shape_magnitude: dict[str, float] | None = None  # complex shapes only: |φ_j| (largest 1)
+    shape_phase_deg: dict[str, float] | None = None  # complex shapes only: arg φ_j, degrees
 
 
 @dataclass(frozen=True)
@@ -120,15 +136,26 @@ class Linearisation:
     G: np.ndarray                     # skew (gyroscopic) part of the velocity matrix
     K: np.ndarray                     # symmetric stiffness
     N: np.ndarray                     # skew (circulatory) part of the stiffness
+    velocities: tuple[float, ...] = ()   # q̇ about which it is taken (SI; non-zero in steady motion)
+    time: float = 0.0                 # s, the time it is taken at
+
+
+@dataclass(frozen=True)
+class ResponsePeak:
+    """Largest steady amplitude of one coordinate or output over the swept range."""
+    amplitude: float                  # in the display unit of the coordinate or output
+    frequency_hz: float
 
 
 @dataclass(frozen=True)
 class FrequencyResponse:
     frequency_hz: np.ndarray
-    amplitude: dict[str, np.ndarray]  # coordinate or output -> amplitude (SI)
+    amplitude: dict[str, np.ndarray]  # coordinate or output -> amplitude, in units[name]
     phase_deg: dict[str, np.ndarray]
-    units: dict[str, str]
+    units: dict[str, str]             # display unit of each coordinate or output (mm, deg, kN)
     excitation: dict[str, str]        # coordinate -> amplitude expression text
+    peaks: dict[str, ResponsePeak] = field(default_factory=dict)
+    omitted: dict[str, str] = field(default_factory=dict)   # output -> why it is not shown
 
 
 @dataclass(frozen=True)
@@ -159,6 +186,10 @@ class TimeHistory:
     agreement: float                  # largest normalised difference between the two
     agreement_tolerance: float
     constraint_drift: float | None = None
+    comparison_points: int = 0        # times at which the two integrators were compared
+    fastest_hz: float = float("nan")  # fastest frequency seen (linearised or observed), Hz
+    fastest_basis: str = ""           # "linearised" or "observed"
+    sampling_note: str = ""           # non-empty when the samples are coarse against the motion
 
 
 @dataclass(frozen=True)
@@ -182,9 +213,12 @@ class OutputSummary:
     name: str
     unit: str
     label: str
-    peak: float
+    peak: float                       # max |value| over the dense solution, in `unit`
     max: float
     min: float
+    t_peak: float = float("nan")      # s, when the peak, max and min occur
+    t_max: float = float("nan")
+    t_min: float = float("nan")
 
 
 @dataclass(frozen=True)
@@ -210,6 +244,15 @@ class CriterionRow:
 
 
 @dataclass(frozen=True)
+class CrosscheckInput:
+    """One handbook input of a crosscheck: the calc expression as written and its value."""
+    name: str                         # the case's input name, e.g. "L"
+    expr: str                         # as written in the calc, e.g. "L*M/(M + m)"
+    value: float                      # SI, in `unit`
+    unit: str                         # the case's SI unit of this input ("1" for a pure number)
+
+
+@dataclass(frozen=True)
 class CrosscheckRow:
     case: str
     title: str
@@ -220,9 +263,14 @@ class CrosscheckRow:
     relative_error: float
     tolerance: float
     tolerance_reason: str
-    passed: bool
-    source: str
+    passed: bool                      # within tolerance AND independent
+    source: str                       # citation: book, edition, chapter topic
     validity: tuple[tuple[str, bool], ...] = ()   # (limit as text, holds?)
+    inputs: tuple[CrosscheckInput, ...] = ()
+    query: str = ""                   # the compared query as written, e.g. "natural_frequency(2)"
+    unit: str = ""                    # SI unit of the quantity ("1" for a pure number)
+    independent: bool = True          # False: the comparison cannot fail on its own
+    dependence: str = ""              # why it is not independent ("" when it is)
 
 
 @dataclass

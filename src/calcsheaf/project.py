@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import re
+import unicodedata
 from pathlib import Path
 
+from . import identifiers
 from .calcfile.loader import closest, did_you_mean
 from .calcfile.toml_source import read_toml
 from .errors import InputError, ProblemList
@@ -80,11 +82,24 @@ def _people(rows, problem) -> tuple[Person, ...]:
         if not all(isinstance(row.get(k, ""), str) for k in PERSON_KEYS) or not row.get("id") or not row.get("name"):
             problem(key, "a person needs text id and name", 'write id = "jdoe" and name = "..."')
             continue
-        if row["id"] in seen:
-            problem(f"{key}.id", f"person id '{row['id']}' appears twice", "give each person a unique id")
-        seen.add(row["id"])
+        bad_id = identifiers.problem("person id", row["id"])
+        if bad_id:
+            problem(f"{key}.id", bad_id, identifiers.fix("person id"))
+        for field in ("id", "name", "public_key"):
+            value = _same_name(row[field]) if field == "name" else row.get(field, "")
+            if value and (field, value) in seen:
+                problem(f"{key}.{field}", f"the {field.replace('_', ' ')} of person[{i}] "
+                        f"repeats that of an earlier person",
+                        "each person appears once, with their own id, name and key; remove the "
+                        "duplicate [[person]] entry")
+            seen.add((field, value))
         out.append(Person(**{k: row.get(k, "") for k in PERSON_KEYS}))
     return tuple(out)
+
+
+def _same_name(name: str) -> str:
+    """The form in which two names count as the same: NFKC, case-folded, single spaces."""
+    return " ".join(unicodedata.normalize("NFKC", name).casefold().split())
 
 
 def calc_files(root: Path) -> list[Path]:

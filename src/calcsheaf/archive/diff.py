@@ -1,9 +1,13 @@
-"""What changed between two revisions of a calc: inputs, assumptions, results, criteria.
+"""What changed between two revisions of a calc: every key of the calc file, and the results.
 
-Each side is a calc file (parsed TOML) and its results.json.  A side is an issued revision
-(its frozen files) or `current`: the working calc file and the latest build's
-PROJECT/_site/<CALC>/results.json.  Values are shown as given (inputs) or in the unit
-results.json names beside them.
+Each side is a calc file (its parsed TOML) and its results dict.  A side is an issued
+revision (its frozen calc file and frozen results.json) or `current`: the working calc
+file and results analysed afresh from that very file by the caller's `analyse` (never a
+build's possibly stale results.json).  Every key of the calc file is compared (tables
+flattened to dotted paths, arrays of tables named by their id or name, else numbered),
+and every value of results.json except the calc's own status, revision and software
+versions.  Numbers are shown in full (shortest round-trip form), in the unit results.json
+names beside them; nothing is shortened and a missing value reads "(absent)".
 """
 
 from __future__ import annotations
@@ -11,164 +15,178 @@ from __future__ import annotations
 import json
 import tomllib
 from pathlib import Path
+from typing import Callable
 
 from calcsheaf.errors import ArchiveError
 
 from . import projectfiles
 from .manifest import MANIFEST
-from .revisions import revision_folder
+from .revisions import ordered_revisions, revision_folder
 
 CURRENT = "current"
-SECTIONS = ("inputs", "assumptions", "results", "criteria")
+SECTIONS = ("inputs", "assumptions", "references", "results", "criteria")
+ABSENT = "(absent)"
+# results.json keys that describe the run, not the calc's answers
+RUN_KEYS = frozenset({"software", "build_date", "input_hash"})
+ROW_NAMES = ("id", "name", "case", "parameter")
+
+Analyse = Callable[[Path, bytes], dict]   # (calc file, its bytes) -> results, analysed afresh
 
 
-def load_side(project_root: Path, calc_number: str, revision: str) -> tuple[dict, dict]:
+def load_side(project_root: Path, calc_number: str, revision: str,
+              analyse: Analyse | None = None) -> tuple[dict, dict]:
     """(calc TOML data, results dict) of an issued revision or of `current`."""
     project_root = Path(project_root)
     if revision == CURRENT:
-        calc_file = projectfiles.find_calc_file(project_root, calc_number)
-        results_file = project_root / "_site" / calc_number / "results.json"
-        fix = "run `calcsheaf build PROJECT` first"
-    else:
-        folder = revision_folder(project_root, calc_number, revision)
-        if not (folder / MANIFEST).is_file():
-            raise ArchiveError(f"revision {revision} of calc {calc_number} is not issued",
-                               file=folder, fix="give an issued revision or `current`")
-        manifest = json.loads((folder / MANIFEST).read_text(encoding="utf-8"))
-        calc_file = folder / manifest["calc_file"]
-        results_file = folder / "output" / "results.json"
-        fix = "verify the revision folder: a file is missing"
-    if not results_file.is_file():
-        raise ArchiveError("no results.json to compare", file=results_file, fix=fix)
-    return (tomllib.loads(calc_file.read_text(encoding="utf-8")),
-            json.loads(results_file.read_text(encoding="utf-8")))
+        if analyse is None:
+            raise ArchiveError("comparing with `current` needs a fresh analysis", key="rev",
+                               fix="use `calcsheaf diff`, which analyses the working calc file")
+        path, data, parsed = projectfiles.read_calc(project_root, calc_number)
+        return parsed, analyse(path, data)
+    projectfiles.identifiers_check("revision", revision, "rev")
+    folder = revision_folder(project_root, calc_number, revision)
+    if not (folder / MANIFEST).is_file():
+        raise ArchiveError(f"revision {revision} of calc {calc_number} is not issued",
+                           file=folder, fix="give an issued revision or `current`")
+    manifests = {rev: manifest for rev, _, manifest in ordered_revisions(project_root, calc_number)}
+    calc_rel = manifests[revision]["calc_file"]
+    calc_file, results_file = folder / calc_rel, folder / "output" / "results.json"
+    if not _inside(folder, calc_file) or not calc_file.is_file() or not results_file.is_file():
+        raise ArchiveError("the revision folder lacks its frozen calc file or results.json",
+                           file=folder, fix="run `calcsheaf verify` on it: a file is missing")
+    try:
+        results = json.loads(results_file.read_text(encoding="utf-8"))
+    except (ValueError, UnicodeDecodeError) as exc:
+        raise ArchiveError(f"results.json cannot be read ({exc})", file=results_file,
+                           fix="run `calcsheaf verify` on the revision") from None
+    return projectfiles.read_toml(calc_file), results
 
 
-def _fmt(value) -> str:
+def _inside(folder: Path, path: Path) -> bool:
+    return folder.resolve() in path.resolve().parents
+
+
+def text(value) -> str:
+    """A value as shown in a diff: full precision, never `None`."""
+    if value is None:
+        return ABSENT
     if isinstance(value, bool):
-        return "yes" if value else "no"
+        return "true" if value else "false"
     if isinstance(value, float):
-        return f"{value:.6g}"
-    return str(value)
+        return repr(value)
+    if isinstance(value, (int, str)):
+        return str(value)
+    return json.dumps(value, sort_keys=True, ensure_ascii=False, default=str)
 
 
-def _quantity(entry: dict) -> str:
-    return f"{_fmt(entry.get('value'))} {entry.get('unit', '')}".strip()
+def flatten(data, path: str = "") -> dict[str, str]:
+    """Dotted path -> shown value of every leaf.  {value, unit} pairs stay one item."""
+    if isinstance(data, dict):
+        if "value" in data and "unit" in data and not isinstance(data["value"], (dict, list)):
+            items = {path: f"{text(data['value'])} {text(data['unit'])}".strip()}
+            rest = {k: v for k, v in data.items() if k not in ("value", "unit")}
+            return items | (flatten(rest, path) if rest else {})
+        if not data and path:
+            return {path: "{}"}
+        out: dict[str, str] = {}
+        for key in sorted(data, key=str):
+            out |= flatten(data[key], f"{path}.{key}" if path else str(key))
+        return out
+    if isinstance(data, list) and data and all(isinstance(row, dict) for row in data):
+        out = {}
+        for label, row in zip(_row_labels(data), data):
+            out |= flatten(row, f"{path}[{label}]")
+        return out
+    return {path: text(data)}
 
 
-def input_items(calc: dict) -> dict[str, str]:
-    """Parameters, energy expressions and initial state as written in the calc file."""
-    items = {}
-    for name, given in (calc.get("parameters") or {}).items():
-        if isinstance(given, dict):
-            text = str(given.get("value", ""))
-            if given.get("source"):
-                text += f" [{given['source']}]"
-        else:
-            text = str(given)
-        items[f"parameter {name}"] = text
-    for part in ("kinetic", "potential", "dissipation"):
-        if part in (calc.get("energy") or {}):
-            items[f"energy {part}"] = str(calc["energy"][part])
-    for name, expr in (calc.get("generalized_forces") or {}).items():
-        items[f"generalized force {name}"] = str(expr)
-    for name, given in (calc.get("initial") or {}).items():
-        items[f"initial {name}"] = str(given)
-    return items
+def _row_labels(rows: list[dict]) -> list[str]:
+    """Each row's id (or name, case, parameter) when those are unique, else its number."""
+    for field in ROW_NAMES:
+        labels = [row.get(field) for row in rows]
+        if all(isinstance(v, str) and v for v in labels) and len(set(labels)) == len(labels):
+            return labels
+    return [str(i) for i in range(1, len(rows) + 1)]
 
 
-def assumption_items(calc: dict) -> dict[str, str]:
-    items = {}
-    for entry in calc.get("assumption", []) or []:
-        text = str(entry.get("text", ""))
-        if entry.get("open"):
-            text += " (OPEN)"
-        items[str(entry.get("id", "?"))] = text
-    return items
+def calc_items(calc: dict) -> dict[str, dict[str, str]]:
+    """Section -> {item: shown value} over every key of a calc file."""
+    sections = {"inputs": {}, "assumptions": {}, "references": {}}
+    for item, value in flatten(calc).items():
+        section = ("assumptions" if item.startswith("assumption[") else
+                   "references" if item.startswith("reference[") else "inputs")
+        sections[section][item] = value
+    return sections
 
 
-def result_items(results: dict) -> dict[str, str]:
-    """Named results, output peaks, equilibrium values, modes and the overall verdict."""
-    items = {f"result {k}": _quantity(v) for k, v in (results.get("results") or {}).items()}
-    for name, out in (results.get("outputs") or {}).items():
-        items[f"output {name} peak"] = f"{_fmt(out.get('peak'))} {out.get('unit', '')}".strip()
-    for name, entry in (results.get("equilibrium") or {}).items():
-        if isinstance(entry, dict) and "value" in entry:
-            items[f"equilibrium {name}"] = _quantity(entry)
-    for index, mode in enumerate(results.get("modes") or [], start=1):
-        items[f"mode {index} frequency"] = f"{_fmt(mode.get('natural_frequency_hz'))} Hz"
-        items[f"mode {index} damping ratio"] = _fmt(mode.get("damping_ratio"))
-    items["all checks pass"] = _fmt(results.get("passed"))
-    return items
+def result_items(results: dict) -> dict[str, dict[str, str]]:
+    """Section -> {item: shown value}: criteria by name, every other answer of results.json."""
+    kept = {k: v for k, v in (results or {}).items() if k not in RUN_KEYS}
+    calc = {k: v for k, v in (kept.pop("calc", None) or {}).items()
+            if k not in ("status", "revision")}
+    criteria = kept.pop("criteria", None) or []
+    return {"results": flatten(dict(kept, calc=calc) if calc else kept),
+            "criteria": flatten({"criterion": criteria}) if criteria else {}}
 
 
-def criterion_items(results: dict) -> dict[str, str]:
-    items = {}
-    for row in results.get("criteria") or []:
-        items[str(row.get("name", "?"))] = (
-            f"{_fmt(row.get('demand'))} / {_fmt(row.get('capacity'))} = ratio "
-            f"{_fmt(row.get('ratio'))} {'pass' if row.get('pass') else 'FAIL'}")
-    return items
-
-
-def compare_sides(old_calc: dict, old_results: dict, new_calc: dict, new_results: dict) -> list[dict]:
+def compare_sides(old_calc: dict, old_results: dict, new_calc: dict,
+                  new_results: dict) -> list[dict]:
     """Rows {section, item, old, new, change}; change is same, changed, added or removed."""
-    pairs = {"inputs": (input_items(old_calc), input_items(new_calc)),
-             "assumptions": (assumption_items(old_calc), assumption_items(new_calc)),
-             "results": (result_items(old_results), result_items(new_results)),
-             "criteria": (criterion_items(old_results), criterion_items(new_results))}
+    old = calc_items(old_calc) | result_items(old_results)
+    new = calc_items(new_calc) | result_items(new_results)
     rows = []
     for section in SECTIONS:
-        old, new = pairs[section]
-        for item in list(old) + [k for k in new if k not in old]:
-            a, b = old.get(item), new.get(item)
+        a_items, b_items = old[section], new[section]
+        for item in list(a_items) + [k for k in b_items if k not in a_items]:
+            a, b = a_items.get(item), b_items.get(item)
             change = ("added" if a is None else "removed" if b is None
                       else "same" if a == b else "changed")
-            rows.append({"section": section, "item": item, "old": a or "", "new": b or "",
-                         "change": change})
+            rows.append({"section": section, "item": item, "old": ABSENT if a is None else a,
+                         "new": ABSENT if b is None else b, "change": change})
     return rows
 
 
-def revision_diff(project_root: Path, calc_number: str, rev_a: str, rev_b: str) -> dict:
-    """{calc, a, b, rows} comparing revision rev_a with rev_b (which may be `current`)."""
-    old = load_side(project_root, calc_number, rev_a)
-    new = load_side(project_root, calc_number, rev_b)
+def revision_diff(project_root: Path, calc_number: str, rev_a: str, rev_b: str,
+                  analyse: Analyse | None = None) -> dict:
+    """{calc, a, b, rows} comparing revision rev_a with rev_b (either may be `current`)."""
+    projectfiles.identifiers_check("calc number", calc_number, "calc")
+    old = load_side(project_root, calc_number, rev_a, analyse)
+    new = load_side(project_root, calc_number, rev_b, analyse)
     return {"calc": calc_number, "a": rev_a, "b": rev_b,
             "rows": compare_sides(old[0], old[1], new[0], new[1])}
 
 
 def changes_since_issue(project_root: Path, calc_number: str, calc_text: str,
-                        results: dict) -> dict | None:
-    """For a draft's page: {calc, a, b, rows} from the latest issued revision to the draft.
+                        results: dict, *, label: str = CURRENT) -> dict | None:
+    """{calc, a, b, rows} from the latest issued revision to the given calc text and results.
 
-    `calc_text` is the working calc file's text and `results` its results dict from this
-    build (not yet written).  None when the calc has no issued revision.
+    `calc_text` is the calc file's text and `results` its results dict from this build or
+    issue (not yet written); `label` names that side (`current` for a draft, the new
+    revision when issuing).  None when the calc has no issued revision.
     """
-    from .revisions import latest_revision
-    latest = latest_revision(project_root, calc_number)
-    if latest is None:
+    revs = ordered_revisions(project_root, calc_number)
+    if not revs:
         return None
+    latest = revs[-1][0]
     old_calc, old_results = load_side(project_root, calc_number, latest)
-    return {"calc": calc_number, "a": latest, "b": CURRENT,
+    return {"calc": calc_number, "a": latest, "b": label,
             "rows": compare_sides(old_calc, old_results, tomllib.loads(calc_text), results)}
 
 
-def format_diff(diff: dict, *, width: int = 34) -> str:
-    """Plain-text side-by-side table; changed rows are marked `*`, added `+`, removed `-`."""
-    marks = {"same": " ", "changed": "*", "added": "+", "removed": "-"}
+def format_diff(diff: dict) -> str:
+    """Plain text: per section, each item that differs with both values in full, then a count.
+
+    Changed rows are marked `*`, added `+`, removed `-`; unchanged items are counted only.
+    """
+    marks = {"changed": "*", "added": "+", "removed": "-"}
     lines = [f"calc {diff['calc']}: revision {diff['a']} -> {diff['b']}"]
-    changed = sum(r["change"] != "same" for r in diff["rows"])
+    differ = [r for r in diff["rows"] if r["change"] != "same"]
     for section in SECTIONS:
         rows = [r for r in diff["rows"] if r["section"] == section]
-        lines += ["", section.upper(), f"  {'':1} {'item':<{width}} {diff['a']:<{width}} {diff['b']}"]
-        if not rows:
-            lines.append("    (none)")
-        for r in rows:
-            lines.append(f"  {marks[r['change']]} {_clip(r['item'], width):<{width}} "
-                         f"{_clip(r['old'], width):<{width}} {r['new']}")
-    lines += ["", f"{changed} item(s) differ" if changed else "no differences"]
+        changed = [r for r in rows if r["change"] != "same"]
+        lines += ["", f"{section.upper()} ({len(rows)} item(s), {len(changed)} differ)"]
+        for r in changed:
+            lines += [f"  {marks[r['change']]} {r['item']}",
+                      f"      {diff['a']}: {r['old']}", f"      {diff['b']}: {r['new']}"]
+    lines += ["", f"{len(differ)} item(s) differ" if differ else "no differences"]
     return "\n".join(lines) + "\n"
-
-
-def _clip(text: str, width: int) -> str:
-    return text if len(text) <= width else text[: width - 1] + "…"

@@ -26,7 +26,7 @@ from cryptography.hazmat.primitives.kdf.scrypt import Scrypt
 from cryptography.hazmat.primitives.serialization import pkcs12
 from cryptography.x509.oid import NameOID
 
-from calcsheaf import settings
+from calcsheaf import identifiers, settings
 from calcsheaf.errors import ArchiveError
 
 from .canonical import b64, unb64, write_atomic
@@ -34,7 +34,6 @@ from .canonical import b64, unb64, write_atomic
 KEY_FORMAT = "calcsheaf-key-1"
 DEFAULT_LOG2N = 17            # scrypt cost 2**17, r=8: about 128 MiB and a fraction of a second
 MIN_LOG2N = 10                # tests may go this low through CALCSHEAF_KDF_LOG2N
-PERSON_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,39}$")
 CERT_YEARS = 30
 
 
@@ -76,10 +75,10 @@ def config_dir() -> Path:
 
 
 def check_person_id(person_id: str) -> str:
-    if not PERSON_ID.match(person_id or ""):
-        raise ArchiveError(f"person id '{person_id}' is not allowed", key="id",
-                           fix="use 1-40 letters, digits, '.', '_' or '-', starting with a "
-                               "letter or digit (e.g. initials)")
+    """`person_id` when valid (identifiers.PERSON_ID, whole string); ArchiveError otherwise."""
+    found = identifiers.problem("person id", person_id)
+    if found:
+        raise ArchiveError(found, key="id", fix=identifiers.fix("person id"))
     return person_id
 
 

@@ -12,6 +12,8 @@ from pathlib import Path
 
 from cryptography.exceptions import InvalidSignature
 
+from calcsheaf.errors import ArchiveError
+
 from .canonical import b64, sha256_bytes, sha256_file, unb64
 from .keys import PersonKeys, load_public_key
 
@@ -28,7 +30,9 @@ def folder_files(folder: Path) -> dict[str, str]:
     found = {}
     for path in sorted(Path(folder).rglob("*")):
         rel = path.relative_to(folder).as_posix()
-        if path.is_file() and rel not in (MANIFEST, SIGNATURES):
+        if path.is_symlink():
+            found[rel] = "(a symbolic link, never part of an issued revision)"
+        elif path.is_file() and rel not in (MANIFEST, SIGNATURES):
             found[rel] = sha256_file(path)
     return found
 
@@ -79,13 +83,14 @@ def check_manifest_signatures(manifest_bytes: bytes, signatures: dict,
     that is not a recorded one fails.
     """
     rows: list[Row] = []
-    entries = signatures.get("signatures", []) if isinstance(signatures, dict) else []
+    listed = signatures.get("signatures", []) if isinstance(signatures, dict) else []
+    entries = [e for e in listed if isinstance(e, dict)] if isinstance(listed, list) else []
     recorded_keys = {p.get("public_key") for p in people.values()}
     for entry in entries:
         if entry.get("public_key") not in recorded_keys:
             rows.append(("manifest signature", False,
                          f"signed by a key not recorded for this revision (person "
-                         f"'{entry.get('person', '?')}', key {entry.get('public_key', '')[:16]}...)"))
+                         f"'{entry.get('person', '?')}', key {str(entry.get('public_key', ''))[:16]}...)"))
     for role, who in sorted(people.items()):
         item = f"manifest signature ({role})"
         match = [e for e in entries if e.get("role") == role]
@@ -98,7 +103,7 @@ def check_manifest_signatures(manifest_bytes: bytes, signatures: dict,
             continue
         try:
             load_public_key(who["public_key"]).verify(unb64(entry["signature"]), manifest_bytes)
-        except (InvalidSignature, ValueError, KeyError):
+        except (InvalidSignature, ValueError, KeyError, TypeError, AttributeError, ArchiveError):
             rows.append((item, False, "Ed25519 signature does not match MANIFEST.json "
                          "(the manifest was edited or the signature replaced)"))
             continue

@@ -17,12 +17,12 @@ from __future__ import annotations
 
 import json
 import os
-import re
 import shutil
+from dataclasses import replace
 from pathlib import Path
 from typing import Callable
 
-from calcsheaf import __version__
+from calcsheaf import __version__, identifiers
 from calcsheaf.errors import ArchiveError
 
 from . import projectfiles
@@ -30,15 +30,14 @@ from .canonical import pretty_json, sha256_bytes, today
 from .keys import PersonKeys
 from .manifest import MANIFEST, SIGNATURES, make_manifest, sign_manifest
 from .pdfsign import sign_issued_pdf
-from .signoffs import ROLES, signoff_status
+from .signoffs import ROLES, latest_manifest_sha, signoff_status
 
-REVISION = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,15}$")
-
-Render = Callable[..., Path]   # build_calc(project_root, calc, out_dir, *, status, revision, signoff)
+Render = Callable[..., Path]   # see issue()
 Unlock = Callable[[str], PersonKeys]
 
 
 def calc_folder(project_root: Path, calc_number: str) -> Path:
+    projectfiles.identifiers_check("calc number", calc_number, "calc")
     return Path(project_root) / "issued" / calc_number
 
 
@@ -66,12 +65,33 @@ def _parsed_manifest(path: Path, data: bytes) -> dict:
         manifest = json.loads(data)
     except ValueError:
         manifest = None
-    missing = [k for k in MANIFEST_KEYS if not isinstance(manifest, dict) or k not in manifest]
-    if missing:
-        raise ArchiveError(f"is not a calcsheaf manifest (missing {', '.join(missing)})", file=path,
+    problem = manifest_problem(manifest)
+    if problem:
+        raise ArchiveError(f"is not a calcsheaf manifest ({problem})", file=path,
                            fix="restore this issued revision from the archive copy; "
                                "`calcsheaf verify` on it shows what changed")
     return manifest
+
+
+def manifest_problem(manifest) -> str | None:
+    """What makes parsed JSON not a usable manifest (None when it is one)."""
+    if not isinstance(manifest, dict):
+        return "not a JSON object"
+    missing = [k for k in MANIFEST_KEYS if k not in manifest]
+    if missing:
+        return f"missing {', '.join(missing)}"
+    wrong = [k for k in MANIFEST_KEYS[:-1] if not isinstance(manifest[k], str)]
+    if not isinstance(manifest["files"], dict) or not all(
+            isinstance(k, str) and isinstance(v, str) for k, v in manifest["files"].items()):
+        wrong.append("files")
+    link = manifest.get("supersedes")
+    if link is not None and not (isinstance(link, dict) and all(
+            isinstance(link.get(k), str) for k in ("revision", "manifest_sha256"))):
+        wrong.append("supersedes")
+    for key in ("prepared_by", "checked_by"):
+        if not isinstance(manifest.get(key, {}), dict):
+            wrong.append(key)
+    return f"wrong type of {', '.join(wrong)}" if wrong else None
 
 
 def ordered_revisions(project_root: Path, calc_number: str) -> list[tuple[str, bytes, dict]]:
@@ -113,27 +133,48 @@ def revision_history(project_root: Path, calc_number: str) -> list[dict]:
     return history
 
 
+def issued_pdf(project_root: Path, calc_number: str, revision: str) -> bytes:
+    """The signed PDF of an issued revision, refused unless it matches its manifest."""
+    folder = revision_folder(project_root, calc_number, revision)
+    _, manifest = _manifests(project_root, calc_number)[revision]
+    rel = f"output/{calc_number}.pdf"
+    path = folder / rel
+    data = path.read_bytes() if path.is_file() else b""
+    if manifest["files"].get(rel) != sha256_bytes(data):
+        raise ArchiveError("the signed PDF of this issued revision is missing or does not match "
+                           "its manifest", file=path,
+                           fix=f"run `calcsheaf verify {folder}` and restore the revision from "
+                               "the archive")
+    return data
+
+
 def latest_revision(project_root: Path, calc_number: str) -> str | None:
     revs = ordered_revisions(project_root, calc_number)
     return revs[-1][0] if revs else None
 
 
-def _refuse_existing(project_root: Path, calc_number: str, revision: str) -> None:
-    if not REVISION.match(revision):
-        raise ArchiveError(f"revision '{revision}' is not allowed", key="--rev",
-                           fix="use 1-16 letters, digits, '.', '_' or '-' (e.g. A, B, P1)")
+def check_new_revision(project_root: Path, calc_number: str, revision: str) -> None:
+    """Refuse a revision that is not a valid identifier, is issued already, or does not go
+    forward from the latest issued revision (identifiers.revision_key order)."""
+    projectfiles.identifiers_check("calc number", calc_number, "calc")
+    projectfiles.identifiers_check("revision", revision, "--rev")
     folder = revision_folder(project_root, calc_number, revision)
     if folder.exists():
         raise ArchiveError(f"revision {revision} of calc {calc_number} is already issued and is "
                            "never overwritten", file=folder, key="--rev",
                            fix="issue the change as a new revision (e.g. the next letter)")
+    latest = latest_revision(project_root, calc_number)
+    if latest is not None and identifiers.revision_key(revision) <= identifiers.revision_key(latest):
+        raise ArchiveError(f"revision {revision} does not come after the latest issued revision "
+                           f"{latest} of calc {calc_number}", key="--rev",
+                           fix=f"revisions go forward: use {identifiers.next_revision(latest)}")
 
 
-def _ready(project_root: Path, calc_number: str) -> tuple[Path, str, dict]:
-    """Calc file, content hash and valid sign-offs; refuses a calc that is not ready to issue."""
-    calc_file = projectfiles.find_calc_file(project_root, calc_number)
-    digest = projectfiles.content_hash(calc_file)
-    still_open = projectfiles.open_assumptions(projectfiles.read_toml(calc_file))
+def _ready(project_root: Path, calc_number: str) -> tuple[Path, bytes, dict]:
+    """Calc file, its bytes (read once) and valid sign-offs; refuses a calc not ready to issue."""
+    calc_file, data, parsed = projectfiles.read_calc(project_root, calc_number)
+    digest = sha256_bytes(data)
+    still_open = projectfiles.open_assumptions(parsed)
     if still_open:
         raise ArchiveError(f"calc {calc_number} has open assumptions: {', '.join(still_open)}",
                            file=calc_file, key="assumption.open",
@@ -146,23 +187,28 @@ def _ready(project_root: Path, calc_number: str) -> tuple[Path, str, dict]:
                            + (f" ({reasons})" if reasons else ""), file=calc_file,
                            fix="sign the current content: `calcsheaf sign PROJECT CALC --as "
                                "preparer|checker --person ID`")
-    return calc_file, digest, status
+    after = latest_manifest_sha(project_root, calc_number)
+    if any(r["statement"].get("after") != after for r in status["records"].values()):
+        raise ArchiveError(f"the sign-offs of calc {calc_number} were made for the revision "
+                           "already issued, not for a new one", file=calc_file,
+                           fix="both people sign again to issue this content as a new revision")
+    return calc_file, data, status
 
 
-def _unlock_both(project_root: Path, status: dict, unlock: Unlock) -> dict[str, PersonKeys]:
-    listed = projectfiles.people(project_root)
+def _unlock_both(listed: dict, status: dict, unlock: Unlock) -> dict[str, PersonKeys]:
+    """Both signers' keys; the names on them are the roster's (a key file's name is ignored)."""
     keys = {}
     for role in ROLES:
         person_id = status[role]["id"]
-        keys[role] = unlock(person_id)
-        if keys[role].public_key_b64 != listed[person_id]["public_key"]:
+        unlocked = unlock(person_id)
+        if unlocked.public_key_b64 != listed[person_id]["public_key"]:
             raise ArchiveError(f"the key on this machine for '{person_id}' is not the one listed "
                                "in project.toml", key="person", fix="use the listed key")
+        keys[role] = replace(unlocked, name=listed[person_id]["name"])
     return keys
 
 
-def _people_record(project_root: Path, keys: dict[str, PersonKeys]) -> dict:
-    listed = projectfiles.people(project_root)
+def _people_record(listed: dict, keys: dict[str, PersonKeys]) -> dict:
     return {role: dict(listed[k.person_id], chain=[_pem(c) for c in k.chain])
             for role, k in keys.items()}
 
@@ -172,45 +218,77 @@ def _pem(cert) -> str:
     return cert.public_bytes(serialization.Encoding.PEM).decode("ascii")
 
 
-def _default_render() -> Render:
-    from calcsheaf.commands.build import build_calc
-    return build_calc
+def pending_history(project_root: Path, calc_number: str, revision: str, description: str,
+                    keys: dict[str, PersonKeys], digest: str) -> list[dict]:
+    """The revision history as it will read once `revision` is issued (for its own sheets):
+    the latest revision marked superseded by it, and it as the issued one."""
+    history = revision_history(project_root, calc_number)
+    if history:
+        history[-1] = dict(history[-1], status="superseded", superseded_by=revision)
+    history.append({
+        "rev": revision, "date": today(), "status": "issued", "superseded_by": None,
+        "description": description,
+        "prepared_by": keys["preparer"].name, "prepared_by_id": keys["preparer"].person_id,
+        "checked_by": keys["checker"].name, "checked_by_id": keys["checker"].person_id,
+        "content_hash": digest})
+    return history
 
 
-def issue(project_root: Path, calc_number: str, revision: str, *, description: str = "",
-          render: Render | None = None, unlock: Unlock | None = None) -> Path:
+def issue(project_root: Path, calc_number: str, revision: str, *, render: Render,
+          description: str = "", unlock: Unlock | None = None) -> Path:
     """Freeze, sign and record revision `revision` of a calc; returns its folder.
 
-    `description` (e.g. "Issued for construction") goes into the signed manifest and the
-    site's revision table.
-    `render(project_root, calc_number, out_dir, *, status, revision, signoff)` writes the
-    calc's index.html, <CALC>.pdf and results.json into out_dir (default: the build's
-    build_calc); `unlock(person_id)` returns that person's unlocked keys (default: the key
-    file with the passphrase from CALCSHEAF_PASSPHRASE_<ID>, CALCSHEAF_PASSPHRASE or a prompt).
+    The calc file and project.toml are each read once; those bytes are hashed, frozen into
+    the revision folder first, and `render` analyses and renders the frozen copy, so what
+    is signed is exactly what was analysed.  `description` (e.g. "Issued for
+    construction") goes into the signed manifest and the revision tables.
+    `render(frozen_calc, project_root, out_dir, *, calc_number, status, revision, signoff,
+    history)` writes index.html, <CALC>.pdf and results.json into out_dir;
+    `unlock(person_id)` returns that person's unlocked keys (default: the key file with the
+    passphrase from CALCSHEAF_PASSPHRASE_<ID>, CALCSHEAF_PASSPHRASE or a prompt).
     """
     from .keys import unlock as unlock_from_key_file
     project_root = Path(project_root)
-    _refuse_existing(project_root, calc_number, revision)
-    calc_file, digest, status = _ready(project_root, calc_number)
-    keys = _unlock_both(project_root, status, unlock or unlock_from_key_file)
+    check_new_revision(project_root, calc_number, revision)
     base = calc_folder(project_root, calc_number)
     base.mkdir(parents=True, exist_ok=True)
     with _issue_lock(base):
-        _refuse_existing(project_root, calc_number, revision)
+        check_new_revision(project_root, calc_number, revision)
+        calc_file, calc_bytes, status = _ready(project_root, calc_number)
+        project_toml = projectfiles.project_file(project_root)
+        project_bytes = project_toml.read_bytes()
+        listed = projectfiles.people_from_data(
+            projectfiles.parse_toml_bytes(project_bytes, project_toml), project_toml)
+        keys = _unlock_both(listed, status, unlock or unlock_from_key_file)
         for leftover in base.glob(".staging-*"):
             shutil.rmtree(leftover)      # from an interrupted issue; never published
         staging = base / f".staging-{revision}"
         try:
-            facts = _stage(project_root, calc_number, revision, staging, calc_file, digest,
-                           status, keys, render or _default_render())
+            inputs = _freeze_inputs(staging, calc_file.name, calc_bytes, project_bytes)
+            history = pending_history(project_root, calc_number, revision, description, keys,
+                                      inputs["digest"])
+            facts = _stage(project_root, calc_number, revision, staging, inputs, status, keys,
+                           render, history)
             facts["description"] = description
-            _seal(staging, facts, keys)
+            _seal(staging, facts, keys, _people_record(listed, keys), status["records"])
             final = revision_folder(project_root, calc_number, revision)
             os.rename(staging, final)
         finally:
             if staging.exists():
                 shutil.rmtree(staging)
     return final
+
+
+def _freeze_inputs(staging: Path, calc_name: str, calc_bytes: bytes,
+                   project_bytes: bytes) -> dict:
+    """Write the bytes read once into staging/inputs; returns the frozen calc, hash, project."""
+    frozen_calc = staging / "inputs" / "calcs" / calc_name
+    frozen_calc.parent.mkdir(parents=True)
+    frozen_calc.write_bytes(calc_bytes)
+    (staging / "inputs" / "project.toml").write_bytes(project_bytes)
+    return {"calc_file": frozen_calc, "digest": sha256_bytes(calc_bytes),
+            "project": projectfiles.project_number_in(
+                projectfiles.parse_toml_bytes(project_bytes, staging / "inputs" / "project.toml"))}
 
 
 def _issue_lock(base: Path):
@@ -236,35 +314,31 @@ class _Held:
         self.lock.release()
 
 
-def _stage(project_root: Path, calc_number: str, revision: str, staging: Path, calc_file: Path,
-           digest: str, status: dict, keys: dict[str, PersonKeys], render: Render) -> dict:
+def _stage(project_root: Path, calc_number: str, revision: str, staging: Path, inputs: dict,
+           status: dict, keys: dict[str, PersonKeys], render: Render,
+           history: list[dict]) -> dict:
     output = staging / "output"
     output.mkdir(parents=True)
     signoff = {k: v for k, v in status.items() if k != "records"}
-    render(project_root, calc_number, output, status="issued", revision=revision, signoff=signoff)
-    results = _issued_results(output, calc_number)
+    frozen_calc = inputs["calc_file"]
+    render(frozen_calc, project_root, output, calc_number=calc_number, status="issued",
+           revision=revision, signoff=signoff, history=history)
+    if projectfiles.content_hash(frozen_calc) != inputs["digest"]:
+        raise ArchiveError("the frozen calc file changed while issuing", file=frozen_calc,
+                           fix="issue again; nothing may write into issued/ meanwhile")
+    results = _issued_results(output, calc_number, revision)
     pdf = output / f"{calc_number}.pdf"
     if not pdf.is_file():
         raise ArchiveError(f"the build wrote no {pdf.name}", file=output,
                            fix="check the PDF writer (WeasyPrint) works: `calcsheaf build`")
     pdf.write_bytes(sign_issued_pdf(pdf.read_bytes(), keys["preparer"], keys["checker"],
                                     calc=calc_number, revision=revision))
-    frozen_calc = staging / "inputs" / "calcs" / calc_file.name
-    frozen_calc.parent.mkdir(parents=True)
-    shutil.copyfile(calc_file, frozen_calc)
-    shutil.copyfile(projectfiles.project_file(project_root), staging / "inputs" / "project.toml")
-    if projectfiles.content_hash(frozen_calc) != digest:
-        raise ArchiveError("the calc file changed while issuing", file=calc_file,
-                           fix="issue again once editing has stopped")
-    record = staging / "record"
-    record.mkdir()
-    (record / "people.json").write_bytes(pretty_json(_people_record(project_root, keys)))
-    (record / "signoffs.json").write_bytes(pretty_json(status["records"]))
     previous = ordered_revisions(project_root, calc_number)
     return {
-        "project": projectfiles.project_number(project_root), "calc": calc_number,
+        "project": inputs["project"], "calc": calc_number,
         "title": results.get("calc", {}).get("title", ""), "revision": revision, "date": today(),
-        "content_hash": digest, "calc_file": frozen_calc.relative_to(staging).as_posix(),
+        "content_hash": inputs["digest"],
+        "calc_file": frozen_calc.relative_to(staging).as_posix(),
         "pdf": pdf.relative_to(staging).as_posix(),
         "prepared_by": {"id": keys["preparer"].person_id, "name": keys["preparer"].name},
         "checked_by": {"id": keys["checker"].person_id, "name": keys["checker"].name},
@@ -273,12 +347,17 @@ def _stage(project_root: Path, calc_number: str, revision: str, staging: Path, c
         "software": {"calcsheaf": __version__}}
 
 
-def _issued_results(output: Path, calc_number: str) -> dict:
+def _issued_results(output: Path, calc_number: str, revision: str) -> dict:
     path = output / "results.json"
     if not path.is_file():
         raise ArchiveError("the build wrote no results.json", file=output,
                            fix="check `calcsheaf build` for this calc")
     results = json.loads(path.read_text(encoding="utf-8"))
+    named = results.get("calc", {}) if isinstance(results, dict) else {}
+    if (named.get("number"), named.get("revision")) != (calc_number, revision):
+        raise ArchiveError(f"the rendered results are of calc {named.get('number')} revision "
+                           f"{named.get('revision')}, not {calc_number} {revision}", file=path,
+                           fix="report this: the renderer did not use the frozen calc file")
     if results.get("passed") is not True:
         failed = [c.get("name", "?") for c in results.get("criteria", []) if not c.get("pass")]
         detail = f" (failing criteria: {', '.join(failed)})" if failed else ""
@@ -288,7 +367,12 @@ def _issued_results(output: Path, calc_number: str) -> dict:
     return results
 
 
-def _seal(staging: Path, facts: dict, keys: dict[str, PersonKeys]) -> None:
+def _seal(staging: Path, facts: dict, keys: dict[str, PersonKeys], people: dict,
+          records: dict) -> None:
+    record = staging / "record"
+    record.mkdir()
+    (record / "people.json").write_bytes(pretty_json(people))
+    (record / "signoffs.json").write_bytes(pretty_json(records))
     manifest_bytes = pretty_json(make_manifest(staging, facts))
     (staging / MANIFEST).write_bytes(manifest_bytes)
     signatures = sign_manifest(manifest_bytes, [(role, keys[role]) for role in ROLES])

@@ -66,6 +66,6 @@ def add_person(project_root: Path, keys: PersonKeys, role: str = "") -> bool:
     if text and not text.endswith("\n"):
         text += "\n"
     text += person_block(keys, role)
-    tomllib.loads(text)          # what we append must keep the file valid
+    people_from_data(tomllib.loads(text), path)   # valid TOML, no name or key listed twice
     path.write_text(text, encoding="utf-8")
     return True

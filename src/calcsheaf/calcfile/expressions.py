@@ -49,7 +49,7 @@ QUERY_FUNCTIONS = {
     "period": (1, "coordinate"), "log_decrement": (1, "coordinate"),
     "equilibrium": (1, "coordinate"),
     "natural_frequency": (1, "mode"), "damping_ratio": (1, "mode"),
-    "damped_frequency": (1, "mode"),
+    "damped_frequency": (1, "mode"), "undamped_frequency": (1, "mode"),
     "frf": (2, "response"), "frf_peak": (1, "response"),
     "frf_peak_frequency": (1, "response"),
 }

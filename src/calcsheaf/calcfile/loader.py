@@ -14,11 +14,12 @@ from typing import Any, Callable
 
 import sympy as sp
 
+from .. import identifiers
 from ..errors import CalcsheafError, InputError, ProblemList
 from ..model import Assumption, Reference
 from . import spec as S
 from .expressions import (RESERVED_NAMES, Scope, Where, check_with_values, parse_expression,
-                          velocity)
+                          query_name, velocity)
 from .names import display_forms
 from .text_links import local_targets
 from .toml_source import read_toml, value_column
@@ -43,7 +44,7 @@ TABLE_KEYS = {
     "energy": ({"kinetic"}, {"potential", "dissipation"}),
     "point_force": ({"position", "force"}, {"label"}),
     "constraint": ({"name", "equation"}, {"unit", "label"}),
-    "analysis": (set(), {"equilibrium", "modes", "energy_tolerance"}),
+    "analysis": (set(), {"equilibrium", "modes", "energy_tolerance", "expect_unstable"}),
     "time_history": ({"duration"}, {"points", "rtol", "atol", "second_method",
                                     "agreement_tolerance"}),
     "frequency_response": ({"force", "from", "to"}, {"points", "spacing"}),
@@ -76,9 +77,13 @@ def _header(key: str) -> str:
     return f"[[{table.split('[')[0]}]]" if "[" in table else f"[{table}]"
 
 
-def load_calc(path: Path) -> S.CalcSpec:
-    """Read, validate and convert one calc file; raise ProblemList or InputError."""
-    text, data, lines = read_toml(path)
+def load_calc(path: Path, raw: bytes | None = None) -> S.CalcSpec:
+    """Validate and convert one calc file; raise ProblemList or InputError.
+
+    `raw`: the file's bytes as the caller already read them (then the file is not
+    read again, so what is hashed, analysed and cached is exactly these bytes);
+    None reads `path`."""
+    text, data, lines = read_toml(path, raw)
     return _CalcLoader(path, text, data, lines).load()
 
 
@@ -335,9 +340,9 @@ class _CalcLoader:
     def calc_block(self) -> dict:
         block = self.table("calc", self.data.get("calc"), *TABLE_KEYS["calc"])
         number = self.string("calc.number", block.get("number"))
-        if number is not None and not re.match(r"^[A-Za-z0-9][A-Za-z0-9._-]*$", number):
-            self.problem("calc.number", f"calc number '{number}' cannot name a folder",
-                         "use letters, digits, '.', '_' and '-', e.g. C-102")
+        bad_number = identifiers.problem("calc number", number) if number is not None else None
+        if bad_number:
+            self.problem("calc.number", bad_number, identifiers.fix("calc number"))
             number = None
         hazards = block.get("hazards", [])
         if not isinstance(hazards, list) or any(h not in HAZARDS for h in hazards):
@@ -529,7 +534,7 @@ class _CalcLoader:
                 continue
             force_dim = ureg.joule.dimensionality / dim
             self.dims[name] = force_dim
-            unit_text = self.string(f"{key}.unit", row.get("unit"), si_unit_text(force_dim))
+            unit_text = self.string(f"{key}.unit", row.get("unit"), _force_unit(force_dim))
             unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text, force_dim))
             if unit is None:
                 continue
@@ -591,7 +596,8 @@ class _CalcLoader:
         return S.AnalysisSpec(
             equilibrium=self.boolean("analysis.equilibrium", block.get("equilibrium"), True),
             modes=self.boolean("analysis.modes", block.get("modes"), True),
-            energy_tolerance=self.number("analysis.energy_tolerance", block.get("energy_tolerance"), 1e-6))
+            energy_tolerance=self.number("analysis.energy_tolerance", block.get("energy_tolerance"), 1e-6),
+            expect_unstable=self.boolean("analysis.expect_unstable", block.get("expect_unstable"), False))
 
     def time_history(self) -> S.TimeHistorySpec | None:
         if "time_history" not in self.data:
@@ -673,7 +679,8 @@ class _CalcLoader:
         dim = DimensionChecker(self.dims, self.where(f"{key}.expr")).infer(expr)
         unit_text = self.string(f"{key}.unit", row.get("unit"), None)
         if unit_text is None:
-            unit_text = si_unit_text(dim)
+            unit_text = _frequency_unit(expr) if dim == ureg.hertz.dimensionality else None
+            unit_text = unit_text or si_unit_text(dim)
         unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text,
                                                        DIMENSIONLESS if dim is None else dim))
         if unit is None:
@@ -765,10 +772,44 @@ class _CalcLoader:
             tolerance = self.number(f"{key}.tolerance", row.get("tolerance"), None)
             if case is None or any(e is None for _, e in ins) or any(e is None for _, e, _ in cmp):
                 continue
-            out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance))
+            out.append(S.Crosscheck(case=case, inputs=tuple(ins), compare=tuple(cmp), tolerance=tolerance,
+                                    input_texts=tuple((n, str(v)) for n, v in inputs.items())))
         return tuple(out)
 
 
+_HERTZ_QUERIES = frozenset({"natural_frequency", "damped_frequency", "frf_peak_frequency"})
+
+
+def _force_unit(dim) -> str:
+    """Default unit of a constraint force: N·m for a constraint on angles (a moment), else SI."""
+    return "N*m" if dim == ureg.joule.dimensionality else si_unit_text(dim)
+
+
+def _frequency_unit(expr: sp.Expr) -> str | None:
+    """Default unit of a result that is a frequency: "Hz" for a frequency query
+    (natural_frequency, damped_frequency, frf_peak_frequency) or 1/period(q), alone, scaled
+    by a plain number, summed, differenced or through abs/min/max; "rad/s" for 2*pi times
+    such a frequency; None when the expression is not recognisably one (then SI, 1/s)."""
+    if isinstance(expr, sp.Mul):
+        numbers = sp.Mul(*[a for a in expr.args if a.is_number])
+        rest = sp.Mul(*[a for a in expr.args if not a.is_number])
+        if _in_hertz(rest) and numbers.has(sp.pi):
+            return "rad/s" if (numbers / (2 * sp.pi)).is_rational else None
+    return "Hz" if _in_hertz(expr) else None
+
+
+def _in_hertz(expr: sp.Expr) -> bool:
+    if query_name(expr.func) in _HERTZ_QUERIES:
+        return True
+    if isinstance(expr, sp.Pow) and expr.exp == -1:
+        return query_name(expr.base.func) == "period"
+    if isinstance(expr, sp.Mul):
+        numbers = [a for a in expr.args if a.is_number]
+        rest = [a for a in expr.args if not a.is_number]
+        return len(rest) == 1 and not any(a.has(sp.pi) for a in numbers) and _in_hertz(rest[0])
+    if isinstance(expr, (sp.Add, sp.Abs, sp.Min, sp.Max)):
+        return all(_in_hertz(a) for a in expr.args)
+    return False
 def _same_display(a: str, b: str) -> str:
     """The shared display of two calc names (LaTeX, else HTML as plain text), or ""."""
     (latex_a, html_a), (latex_b, html_b) = display_forms(a), display_forms(b)

@@ -80,6 +80,7 @@ class Crosscheck:
     inputs: tuple[tuple[str, sp.Expr], ...]
     compare: tuple[tuple[str, sp.Expr, str], ...]      # quantity, query expr, text
     tolerance: float | None = None
+    input_texts: tuple[tuple[str, str], ...] = ()       # input name, expression as written
 
 
 @dataclass(frozen=True)
@@ -106,6 +107,7 @@ class AnalysisSpec:
     equilibrium: bool = True
     modes: bool = True
     energy_tolerance: float = 1e-6
+    expect_unstable: bool = False     # an unstable equilibrium is reported but does not fail the calc
 
 
 @dataclass(frozen=True)

@@ -73,16 +73,12 @@ def key_lines(text: str) -> dict[str, int]:
     return lines
 
 
-def read_toml(path: Path) -> tuple[str, dict, dict[str, int]]:
-    """Text, parsed data and key lines of a TOML file; InputError when unreadable."""
-    try:
-        if path.is_symlink() or not path.is_file():
-            raise InputError("is not a regular file", file=path,
-                             fix="replace the link or folder with the file itself")
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise InputError(f"cannot be read ({exc.strerror})", file=path,
-                         fix="check that the file exists and is readable") from None
+def read_toml(path: Path, raw: bytes | None = None) -> tuple[str, dict, dict[str, int]]:
+    """Text, parsed data and key lines of a TOML file; InputError when unreadable.
+
+    `raw`: the file's bytes, already read by the caller (then `path` only names them)."""
+    if raw is None:
+        raw = _read_regular_file(path)
     if len(raw) > MAX_FILE_BYTES:
         raise InputError(f"is {len(raw)} bytes long (limit {MAX_FILE_BYTES})", file=path,
                          fix="split the calc into smaller calcs")
@@ -139,6 +135,17 @@ def _deepest_key(data, path: str = "", depth: int = 0) -> str | None:
         if found is not None:
             return found
     return None
+
+
+def _read_regular_file(path: Path) -> bytes:
+    try:
+        if path.is_symlink() or not path.is_file():
+            raise InputError("is not a regular file", file=path,
+                             fix="replace the link or folder with the file itself")
+        return path.read_bytes()
+    except OSError as exc:
+        raise InputError(f"cannot be read ({exc.strerror})", file=path,
+                         fix="check that the file exists and is readable") from None
 
 
 def syntax_error(path: Path, text: str, message: str) -> InputError:

@@ -298,7 +298,7 @@ class DimensionChecker:
         return DIMENSIONLESS
 
     def _query(self, name: str, expr):
-        if name in ("natural_frequency", "damped_frequency"):
+        if name in ("natural_frequency", "damped_frequency", "undamped_frequency"):
             return ureg.hertz.dimensionality
         if name in ("damping_ratio", "log_decrement"):
             return DIMENSIONLESS

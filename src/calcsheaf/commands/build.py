@@ -3,7 +3,10 @@
 Incremental: a build whose inputs (calc files, project.toml, sign-offs, issued
 records, template overrides, tool code, SOURCE_DATE_EPOCH) are unchanged and
 whose site is intact does nothing; otherwise only changed calcs are analysed
-and rendered again (content-addressed cache), and the pages that list calcs.
+and rendered again (content-addressed, authenticated cache), and the pages
+that list calcs.  Each calc file is read once: the up-to-date stamp, the cache
+keys and the analysis all use those bytes, and a build during which the
+project's records changed records no stamp and caches nothing.
 
 The site is written into a sibling temporary folder and swapped in atomically
 (renameat2 RENAME_EXCHANGE where the kernel has it), so a build killed at any
@@ -23,11 +26,9 @@ from pathlib import Path
 from filelock import FileLock, Timeout
 
 from .. import settings
-from ..cache import Cache, key, tree_digest
+from ..cache import Cache, key
 from ..errors import BuildError, InputError
 from ..outdir import MARKER, MARKER_TEXT, check_output_folder, is_leftover
-
-WATCHED = ("project.toml", "calcs", "signoffs", "issued", "templates")
 
 
 def build(project_root: Path, out_dir: Path | None = None, jobs: int | None = None,
@@ -41,32 +42,45 @@ def build(project_root: Path, out_dir: Path | None = None, jobs: int | None = No
     started = time.monotonic()
     target = Path(out_dir) if out_dir else root / "_site"
     check_output_folder(target, root)
+    from ..pipeline import read_sources, records_digest
     with _locked(target):
-        site_key = input_key(root, target)
+        records = records_digest(root)
+        sources = read_sources(root)
+        site_key = input_key(root, target, records, sources)
         stamp = target.parent / f".{target.name}.key"
         previous = _up_to_date(target, stamp, site_key)
         if previous is not None:
             print(f"site {target} is up to date (no input changed) "
                   f"[{time.monotonic() - started:.2f} s]", file=out)
             return previous
-        rc, count, failed = _full_build(root, target, jobs, out, err)
-        stamp.write_text(f"{site_key} {rc}\n")
+        rc, count, failed = _full_build(root, target, jobs, out, err, sources, records)
+        if records_digest(root) == records:
+            stamp.write_text(f"{site_key} {rc}\n")
+        else:
+            stamp.unlink(missing_ok=True)
+            print("note: the project's records changed during the build; the next build "
+                  "starts afresh", file=err)
     print(f"built {count} calc(s) into {target} in {time.monotonic() - started:.1f} s"
           f"; {failed} failed", file=out)
     return rc
 
 
-def _full_build(root: Path, target: Path, jobs, out, err) -> tuple[int, int, int]:
+def _full_build(root: Path, target: Path, jobs, out, err, sources, records) -> tuple[int, int, int]:
     from ..model import PackageModel
     from ..pipeline import build_calcs
     from ..project import load_project
+    from ..render.theme import limits
     from ..software import versions
     from . import publish
     from .selftest import cached_selftest_files
 
+    limits()                     # malformed template limits are refused before any work
     project = load_project(root)
     date = publish.build_date()
-    entries = build_calcs(root, project, Cache(root), jobs, _progress(out), date)
+    cache = Cache(root)
+    entries = build_calcs(root, project, cache, jobs, _progress(out), date, sources, records)
+    for note in cache.report():
+        print(f"note: {note}", file=err)
     package = PackageModel(project=project, calcs=[r for r, _ in entries], software=versions(),
                            build_date=date)
     files = publish.site_files(package, [f for _, f in entries], cached_selftest_files())
@@ -97,10 +111,17 @@ def _progress(out):
     return show
 
 
-def input_key(root: Path, target: Path) -> str:
-    """SHA-256 over everything a build reads, plus the tool's code fingerprint."""
-    return key(str(target.resolve()), str(settings.source_date_epoch() or ""),
-               tree_digest(root, WATCHED))
+def input_key(root: Path, target: Path, records: str | None = None, sources=None) -> str:
+    """SHA-256 over everything a build reads, plus the tool's code fingerprint.
+
+    `records`: pipeline.records_digest of the project; `sources`: the calc files as
+    read once for this build (pipeline.CalcSource), by name and content hash; either
+    is read now when not given."""
+    from ..pipeline import read_sources, records_digest
+    records = records_digest(root) if records is None else records
+    sources = read_sources(root) if sources is None else sources
+    calcs = "".join(f"{s.path.name}\0{s.digest or 'unreadable'}\n" for s in sources)
+    return key(str(target.resolve()), str(settings.source_date_epoch() or ""), records, calcs)
 
 
 def _up_to_date(target: Path, stamp: Path, site_key: str) -> int | None:

@@ -29,6 +29,9 @@ def check(project_root: Path, out=None, err=None) -> int:
         failed += not report.passed
         print(f"{verdict}  {report.number:<10} {report.title}  checks {passed}/{len(report.checks)}"
               f"  max D/C {dc}  energy residual {energy}", file=out)
+        if report.equilibrium is not None and not report.equilibrium.stable:
+            print(_indent(f"{outcome.path.name}: {_instability(report.equilibrium)}"), file=out)
+        _dependent_crosschecks(report, out)
         for c in report.checks:
             if not c.passed:
                 print(_indent(f"{outcome.path.name}: {c.kind}: {c.name}: {c.detail}"), file=err)
@@ -37,6 +40,23 @@ def check(project_root: Path, out=None, err=None) -> int:
     total = len(outcomes)
     print(f"{total - failed} of {total} calc(s) passed ({project.number} {project.name})", file=out)
     return 1 if failed else 0
+
+
+def _instability(eq) -> str:
+    """'unstable: growth rate ... 1/s, doubling time ... s' (or why stability is unknown)."""
+    if eq.growth_rate_per_s != eq.growth_rate_per_s:          # NaN: no growing root found
+        return f"stability: {eq.verdict}"
+    expected = " (expected: [analysis] expect_unstable = true)" if eq.expected_unstable else ""
+    return (f"unstable: growth rate {eq.growth_rate_per_s:.4g} 1/s, doubling time "
+            f"{eq.doubling_time_s:.4g} s{expected}")
+
+
+def _dependent_crosschecks(report, out) -> None:
+    """Say which crosschecks cannot fail on their own (they count as failed checks)."""
+    for x in report.crosschecks:
+        if not x.independent:
+            print(_indent(f"crosscheck not independent: {x.case}: {x.quantity} = {x.query}: "
+                          f"{x.dependence}"), file=out)
 
 
 def _indent(text: str) -> str:

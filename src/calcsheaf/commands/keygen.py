@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import getpass
 import os
+from dataclasses import replace
 from pathlib import Path
 
 from calcsheaf.archive import keys as K
@@ -25,8 +26,8 @@ def keygen(name: str, person_id: str, project: Path, *, role: str = "",
         if pkcs12 is not None:
             raise ArchiveError(f"a key file for '{person_id}' already exists", file=path,
                                fix="move it away to import a PKCS#12 file instead")
-        person = K.unlock(person_id)
-        print(f"Using the existing key of {person.name} ({person_id}): {path}")
+        person = replace(K.unlock(person_id), name=name)
+        print(f"Using the existing key of {person_id}: {path}")
     else:
         bundle = K.load_pkcs12(pkcs12, _pkcs12_password(pkcs12)) if pkcs12 else None
         person = K.generate(person_id, name, pkcs12_bundle=bundle)

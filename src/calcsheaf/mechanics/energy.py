@@ -4,36 +4,156 @@ Balance: dh/dt = −∂L/∂t − q̇·∂R/∂q̇ + Q·q̇ + λᵀG q̇.  The r
 h(t) − h(0) + W_d(t) − W_in(t) is normalised by the largest energy scale of the
 run (peak T, range of V and of h, total dissipated and input work).  h equals
 T + V only for natural systems; a rheonomic system is audited on h.
+
+A step() or sign() of a function of t alone switches L at known times t_s.
+There ∂L/∂t holds a Dirac term that the integrated power (taken almost
+everywhere) leaves out; its integral is the jump of L at the state reached,
+so −ΔL(t_s, q(t_s), q̇(t_s)) is added to W_in from t_s on (half of it at a
+sample exactly at t_s, where step(0) = 1/2 and sign(0) = 0).  A switch that
+makes the momentum ∂L/∂q̇ jump needs an impulse the equations do not hold:
+the audit then fails and says so.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+from typing import Callable
+
 import numpy as np
 import sympy as sp
+from scipy.optimize import brentq
 
 from ..calcfile.expressions import TIME
 from ..model import EnergyAudit
 from .codegen import numeric, series_function
-from .lagrange import Derivation
+from .lagrange import Derivation, diff_ae
+
+ROOT_GRID = 20_001           # points on [0, duration] searched for sign changes of a switch
+MOMENTUM_JUMP = 1e-12        # relative jump of ∂L/∂q̇ taken as a real jump
+
+
+@dataclass(frozen=True)
+class Jump:
+    """L switched at t (s): `work` = −ΔL (J) at the state reached, put in by the switch."""
+    t: float
+    work: float
+    momentum_jump: float      # largest |Δ ∂L/∂q̇| relative to |∂L/∂q̇|; 0 when continuous
+    arguments: tuple[sp.Expr, ...]
 
 
 def audit(derivation: Derivation, params: dict[str, float], t, Q, QD, QDD, LAM,
-          dissipated, work_in, tolerance: float) -> EnergyAudit:
+          dissipated, work_in, tolerance: float,
+          state: Callable[[float], np.ndarray]) -> EnergyAudit:
+    """Energy audit along a history; `state(t)` gives [q, q̇, ...] between samples (dense output)."""
     d = derivation
     args = (t, Q, QD, QDD, LAM)
     h = series_function(d.energy_function, d, params)(*args)
     T = series_function(d.T, d, params)(*args)
     V = series_function(d.V, d, params)(*args)
+    jumps = switch_jumps(d, params, t, state)
+    switched = jump_work(jumps, t)
+    work_in = work_in + switched - switched[0]
     residual = h - h[0] + dissipated - work_in
     scale = max(float(np.max(np.abs(T))), float(np.ptp(V)), float(np.ptp(h)),
                 float(np.max(np.abs(dissipated))), float(np.max(np.abs(work_in))))
     worst = float(np.max(np.abs(residual)))
     relative = worst / scale if scale > 0 else worst
+    impulsive = [j for j in jumps if j.momentum_jump > MOMENTUM_JUMP]
+    if impulsive:
+        relative = float("inf")
     is_natural = natural(d, params)
-    notes = list(_notes(d, params, is_natural))
+    notes = list(_notes(d, params, is_natural)) + _jump_notes(jumps, impulsive)
     return EnergyAudit(t=t, h=h, T=T, V=V, dissipated=dissipated, work_in=work_in,
                        residual=residual, max_relative_residual=relative, tolerance=tolerance,
                        passed=bool(relative <= tolerance), natural=is_natural, notes=tuple(notes))
+
+
+def time_switches(derivation: Derivation, params: dict[str, float]) -> tuple[sp.Expr, ...]:
+    """Arguments u(t) of the step() and sign() terms of L that depend on t alone."""
+    d = derivation
+    states = set(d.q) | set(d.qd)
+    found = set()
+    for atom in numeric(d.L, params).atoms(sp.Heaviside, sp.sign):
+        u = atom.args[0]
+        if u.has(TIME) and not u.free_symbols & states:
+            found.add(u)
+    return tuple(sorted(found, key=sp.default_sort_key))
+
+
+def switch_times(u: sp.Expr, duration: float) -> list[float]:
+    """Times in [0, duration] where u(t) is zero or changes sign (grid scan, then Brent)."""
+    grid = np.linspace(0.0, duration, ROOT_GRID)
+    with np.errstate(all="ignore"):
+        values = np.broadcast_to(np.asarray(sp.lambdify([TIME], u, modules="numpy")(grid), dtype=float),
+                                 grid.shape)
+    scalar = sp.lambdify([TIME], u, modules="math")
+    roots = [float(x) for x in grid[values == 0]]
+    for i in np.nonzero(values[:-1] * values[1:] < 0)[0]:
+        roots.append(float(brentq(scalar, grid[i], grid[i + 1], xtol=1e-15 * max(1.0, duration))))
+    return sorted(roots)
+
+
+def switch_jumps(derivation: Derivation, params: dict[str, float], t,
+                 state: Callable[[float], np.ndarray]) -> list[Jump]:
+    """Every switch of L in time over the record, with its work and momentum jump."""
+    d = derivation
+    arguments = time_switches(d, params)
+    if not arguments:
+        return []
+    duration = float(t[-1])
+    moments: dict[float, list[sp.Expr]] = {}
+    for u in arguments:
+        for ts in switch_times(u, duration):
+            key = next((k for k in moments if abs(k - ts) <= 1e-12 * max(1.0, duration)), ts)
+            moments.setdefault(key, []).append(u)
+    L = numeric(d.L, params)
+    momenta = [diff_ae(L, v) for v in d.qd]
+    n = len(d.q)
+    jumps = []
+    for ts in sorted(moments):
+        y = np.asarray(state(ts), dtype=float)
+        point = {TIME: sp.Float(ts), **{s: sp.Float(v) for s, v in zip((*d.q, *d.qd), y[:2 * n])}}
+        left, right = _sides(moments[ts], ts, duration)
+        L_left, L_right = (float(L.xreplace(side).xreplace(point)) for side in (left, right))
+        p_left = np.array([float(p.xreplace(left).xreplace(point)) for p in momenta])
+        p_right = np.array([float(p.xreplace(right).xreplace(point)) for p in momenta])
+        size = max(float(np.max(np.abs(p_left), initial=0.0)), float(np.max(np.abs(p_right), initial=0.0)))
+        change = float(np.max(np.abs(p_right - p_left), initial=0.0))
+        jumps.append(Jump(t=ts, work=-(L_right - L_left),
+                          momentum_jump=change / size if size > 0 else change,
+                          arguments=tuple(moments[ts])))
+    return jumps
+
+
+def _sides(arguments, ts: float, duration: float) -> tuple[dict, dict]:
+    """Values of the switching step()/sign() terms just before and just after ts."""
+    delta = 1e-7 * max(1.0, duration)
+    left, right = {}, {}
+    for u in arguments:
+        scalar = sp.lambdify([TIME], u, modules="math")
+        for side, when in ((left, ts - delta), (right, ts + delta)):
+            s = float(np.sign(scalar(when)))
+            side[sp.Heaviside(u)] = sp.Integer(1) if s > 0 else sp.Integer(0)
+            side[sp.sign(u)] = sp.Integer(int(s))
+    return left, right
+
+
+def jump_work(jumps: list[Jump], t) -> np.ndarray:
+    """Σ of the switch work up to each sample: all of it after t_s, half at t_s itself."""
+    t = np.asarray(t, dtype=float)
+    total = np.zeros_like(t)
+    window = 1e-9 * max(1.0, float(t[-1]))
+    for j in jumps:
+        weight = np.where(t > j.t + window, 1.0, 0.0)
+        near = np.abs(t - j.t) <= window
+        if near.any():
+            u = j.arguments[0]
+            rises = np.sign(sp.lambdify([TIME], u, modules="math")(j.t + 1e-7 * max(1.0, float(t[-1]))))
+            values = np.broadcast_to(np.asarray(sp.lambdify([TIME], u, modules="numpy")(t[near]),
+                                                dtype=float), t[near].shape)
+            weight[near] = np.heaviside(rises * values, 0.5)
+        total += j.work * weight
+    return total
 
 
 def natural(derivation: Derivation, params: dict[str, float], samples: int = 3) -> bool:
@@ -85,6 +205,21 @@ def homogeneity_degree(derivation: Derivation, params: dict[str, float], samples
         return None
     n = float(np.mean(degrees))
     return n if np.allclose(degrees, n, rtol=1e-9, atol=1e-12) else None
+
+
+def _jump_notes(jumps: list[Jump], impulsive: list[Jump]) -> list[str]:
+    notes = []
+    if jumps:
+        times = ", ".join(f"{j.t:.6g}" for j in jumps[:5]) + (", ..." if len(jumps) > 5 else "")
+        notes.append(f"L switches in time {len(jumps)} time(s) (step() or sign() of a function of t "
+                     f"alone), at t = {times} s: the jump −ΔL at the state reached, "
+                     f"{sum(j.work for j in jumps):.6g} J in all, is counted in the work put in.")
+    for j in impulsive:
+        notes.append(f"At t = {j.t:.6g} s the momentum ∂L/∂q̇ jumps (relative change "
+                     f"{j.momentum_jump:.3g}): a kinetic energy that switches in time needs an "
+                     "impulse, which the equations (taken almost everywhere) leave out, so the "
+                     "motion after the switch is not determined by them. Smooth the switch in T.")
+    return notes
 
 
 def _notes(d: Derivation, params, is_natural: bool) -> list[str]:

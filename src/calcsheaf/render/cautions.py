@@ -38,6 +38,26 @@ HAZARDS = {
 }
 
 
+# The short form of each hazard caution, printed at the foot of every sheet of the calc
+# (the full text above is in its Cautions section).
+HAZARD_MARKS = {
+    "suspended_load": "Suspended load: a dropped or swinging load can kill; rigging and "
+                      "supports to the governing lifting rules.",
+    "people_under_load": "People under the load: keep people clear unless the rules for "
+                         "lifting over people are met.",
+    "rotating_machinery": "Rotating machinery: guard moving parts; operate away from "
+                          "natural frequencies, run-up and run-down included.",
+}
+HAZARD_MARK_LEAD = "CAUTION"
+HAZARD_MARK_TAIL = "Full text under Cautions."
+
+
+def hazard_marks(hazards: tuple[str, ...]) -> list[str]:
+    """Short caution for each hazard named by the calc, for the foot of every sheet."""
+    hazard_cautions(hazards)           # refuses unknown hazards with the same message
+    return [HAZARD_MARKS[name] for name in dict.fromkeys(hazards)]
+
+
 def hazard_cautions(hazards: tuple[str, ...]) -> list[str]:
     """Caution text for each hazard named by the calc, in the order given."""
     unknown = sorted(set(hazards) - set(HAZARDS))

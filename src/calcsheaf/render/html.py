@@ -14,7 +14,8 @@ from markupsafe import Markup
 from calcsheaf.errors import BuildError
 from calcsheaf.model import CalcReport, PackageModel, ProjectInfo, Step
 from calcsheaf.render import formatting, plots, site, theme
-from calcsheaf.render.cautions import DRAFT_MARK, GENERAL, calc_cautions
+from calcsheaf.render.cautions import (DRAFT_MARK, GENERAL, HAZARD_MARK_LEAD, HAZARD_MARK_TAIL,
+                                       calc_cautions, hazard_cautions, hazard_marks)
 from calcsheaf.render.equation import Equation, inline, layout
 from calcsheaf.render.mathml import equation_mathml
 from calcsheaf.render.mathsvg import EquationImages, equation_key
@@ -168,6 +169,9 @@ def _context(report: CalcReport, project: ProjectInfo, collect: _Collector, *,
         "build_date": build_date,
         "draft": report.status == "draft",
         "draft_mark": DRAFT_MARK,
+        "hazard_marks": hazard_marks(report.hazards),
+        "hazard_lead": HAZARD_MARK_LEAD,
+        "hazard_tail": HAZARD_MARK_TAIL,
         "links": _links(report.number),
         "paper": paper_size(project),
     }
@@ -205,7 +209,7 @@ def render_calc(report: CalcReport, project: ProjectInfo, *, build_date: str = "
     context["changes"] = changes
     if report.error is not None:
         template = "calc_failed.html.j2"
-        context.update(cautions=list(GENERAL), error=str(report.error))
+        context.update(cautions=[*GENERAL, *hazard_cautions(report.hazards)], error=str(report.error))
     else:
         template = "calc.html.j2"
         context.update(_analysed_context(report, collect))

@@ -14,22 +14,28 @@ from typing import Any
 import numpy as np
 import sympy as sp
 from scipy import optimize
+from scipy.linalg import eigh as scipy_eigh
 
 from ..calcfile.expressions import query_name, symbol
 from ..errors import AnalysisError
 from ..mechanics import frequency
 from ..mechanics.codegen import numeric, series_function
 from ..mechanics.lagrange import diff_ae
+from .extremes import Extremes, extremes as find_extremes, switching_times
+
+SWITCHES = (sp.Heaviside, sp.sign, sp.Abs)
 
 
 @dataclass
 class History:
+    """A record of the motion at times t (SI); Q, QD, QDD are (n, N), LAM is (m, N)."""
     t: np.ndarray
     Q: np.ndarray
     QD: np.ndarray
     QDD: np.ndarray
     LAM: np.ndarray
     dense: Any = None             # OdeSolution of [q, q̇, ...]
+    grid: np.ndarray | None = None   # times at which the dense solution is examined (extremes)
 
 
 @dataclass
@@ -46,6 +52,9 @@ class QueryContext:
     linear_point: np.ndarray | None = None   # coordinates the linear model is taken about
     system: Any = None                       # NumericSystem, for states between samples
     values: dict[str, float] = field(default_factory=dict)   # results so far (SI)
+    _fine: History | None = field(default=None, repr=False)
+    _functions: dict = field(default_factory=dict, repr=False)
+    _extremes: dict = field(default_factory=dict, repr=False)
 
     def evaluate(self, expr: sp.Expr, key: str) -> float:
         """SI value of a query expression; AnalysisError naming `key` when impossible."""
@@ -71,6 +80,8 @@ class QueryContext:
     def _query(self, name: str, args) -> float:
         if name in ("natural_frequency", "damping_ratio", "damped_frequency"):
             return self._mode(name, int(args[0]))
+        if name == "undamped_frequency":
+            return self._undamped(int(args[0]))
         if name == "equilibrium":
             if self.equilibrium is None:
                 raise self._fail("equilibrium() needs the static equilibrium",
@@ -81,29 +92,25 @@ class QueryContext:
         history = self._history(name)
         if name in ("period", "log_decrement"):
             return self._oscillation(name, str(args[0]), history)
-        values = self.series(args[0])
-        t = history.t
-        if name == "peak":
-            return float(np.max(np.abs(values)))
-        if name == "max":
-            return float(np.max(values))
-        if name == "min":
-            return float(np.min(values))
-        if name == "initial":
-            return float(values[0])
-        if name == "final":
-            return float(values[-1])
-        if name == "mean":
-            return float(np.trapezoid(values, t) / (t[-1] - t[0]))
-        if name == "rms":
+        if name in ("peak", "max", "min"):
+            found = self.extremes(args[0])
+            return {"peak": found.peak, "max": found.max, "min": found.min}[name]
+        if name in ("initial", "final"):
+            return float(self.series(args[0])[0 if name == "initial" else -1])
+        if name in ("mean", "rms"):
+            fine = self.fine()
+            values, t = self.series(args[0], fine), fine.t
+            if name == "mean":
+                return float(np.trapezoid(values, t) / (t[-1] - t[0]))
             return float(np.sqrt(np.trapezoid(values ** 2, t) / (t[-1] - t[0])))
         if name == "at":
+            t = history.t
             when = float(numeric(args[1], self.params))
             if not t[0] <= when <= t[-1]:
                 raise self._fail(f"at() time {when} s is outside the time history 0..{t[-1]:g} s",
                                  "give a time inside [time_history] duration")
             if history.dense is None or self.system is None:
-                return float(np.interp(when, t, values))
+                return float(np.interp(when, t, self.series(args[0])))
             return float(self.series(args[0], self._instant(when))[0])
         raise self._fail(f"unknown query {name}()", "see the list of query functions")
 
@@ -115,20 +122,65 @@ class QueryContext:
 
     def _instant(self, when: float) -> History:
         """The state at one time from the dense solution (exact to integrator accuracy)."""
-        n = self.system.n
-        y = self.history.dense(when)
-        qdd, lam = self.system.accelerations(when, y[:n], y[n:2 * n])
-        col = lambda v: np.asarray(v, dtype=float).reshape(-1, 1)
-        return History(t=np.array([when]), Q=col(y[:n]), QD=col(y[n:2 * n]), QDD=col(qdd),
-                       LAM=col(lam) if len(lam) else np.zeros((0, 1)))
+        return self.states(np.array([when], dtype=float))
+
+    def states(self, times: np.ndarray) -> History:
+        """The motion at any times from the dense solution; q̈ and λ from the equations there."""
+        n, m = self.system.n, self.system.m
+        y = np.asarray(self.history.dense(times), dtype=float).reshape(-1, len(times))
+        Q, QD = y[:n], y[n:2 * n]
+        QDD, LAM = np.zeros_like(Q), np.zeros((m, len(times)))
+        for k, tk in enumerate(times):
+            QDD[:, k], LAM[:, k] = self.system.accelerations(float(tk), Q[:, k], QD[:, k])
+        return History(t=np.asarray(times, dtype=float), Q=Q, QD=QD, QDD=QDD, LAM=LAM)
+
+    def fine(self) -> History:
+        """The motion on the history's fine grid (the samples when there is no dense solution)."""
+        h = self.history
+        if h.dense is None or h.grid is None or self.system is None:
+            return h
+        if self._fine is None:
+            self._fine = self.states(h.grid)
+        return self._fine
 
     def series(self, expr: sp.Expr, history: History | None = None) -> np.ndarray:
         """Values of a time-history expression at the history's samples."""
         h = history or self.history
+        return self._function(expr)(h.t, h.Q, h.QD, h.QDD, h.LAM)
+
+    def _function(self, expr: sp.Expr):
+        """The vectorised series function of an expression (outputs substituted), generated once."""
+        if expr not in self._functions:
+            self._functions[expr] = series_function(self._expanded(expr), self.derivation, self.params)
+        return self._functions[expr]
+
+    def extremes(self, expr: sp.Expr) -> Extremes:
+        """Max and min of a time-history expression over the dense solution (see verification.extremes)."""
+        if expr in self._extremes:
+            return self._extremes[expr]
+        fine = self.fine()
+        values = self.series(expr, fine)
+        if fine is self.history and self.history.grid is None:
+            value_at = lambda s: float(np.interp(s, fine.t, values))
+            switches = []
+        else:
+            value_at = lambda s: float(self.series(expr, self._instant(s))[0])
+            switches = self.switches(expr)
+        found = find_extremes(fine.t, values, value_at, switches)
+        self._extremes[expr] = found
+        return found
+
+    def switches(self, expr: sp.Expr) -> list[float]:
+        """Times where a step, sign, abs, min or max argument of `expr` or of the equations changes sign."""
+        fine = self.fine()
+        arguments = switch_arguments(self._expanded(expr), self.derivation)
+        values = [self.series(a, fine) for a in arguments]
+        at = lambda j, s: float(self.series(arguments[j], self._instant(s))[0])
+        return switching_times(fine.t, values, at)
+
+    def _expanded(self, expr: sp.Expr) -> sp.Expr:
         outputs = {symbol(o.name): o.expr for o in self.spec.outputs}
-        expr = expr.xreplace(outputs)
-        fn = series_function(expr, self.derivation, self.params)
-        return fn(h.t, h.Q, h.QD, h.QDD, h.LAM)
+        return expr.xreplace(outputs)
 
     def _mode(self, name: str, index: int) -> float:
         if not self.modes:
@@ -138,37 +190,70 @@ class QueryContext:
             raise self._fail(f"mode {index} does not exist: the calc has {len(self.modes)} mode(s)",
                              f"ask for a mode between 1 and {len(self.modes)}")
         mode = self.modes[index - 1]
-        return {"natural_frequency": mode.natural_frequency_hz, "damping_ratio": mode.damping_ratio,
-                "damped_frequency": mode.damped_frequency_hz}[name]
+        value = {"natural_frequency": mode.natural_frequency_hz, "damping_ratio": mode.damping_ratio,
+                 "damped_frequency": mode.damped_frequency_hz}[name]
+        if np.isfinite(value):
+            return value
+        if mode.kind == "unstable":
+            raise self._fail(f"{name}({index}) is not defined: mode {index} is unstable and grows "
+                             f"without oscillating (growth rate {mode.growth_rate_per_s:.4g} 1/s, "
+                             f"doubling time {mode.doubling_time_s:.4g} s)",
+                             "stabilise the design, or query another mode")
+        raise self._fail(f"{name}({index}) is not defined for mode {index} ({mode.kind})",
+                         "query another mode")
+
+    def _undamped(self, index: int) -> float:
+        """Hz: the index-th frequency of K φ = ω² M φ (damping and skew parts left out),
+        ascending; not paired with the damped modes."""
+        if self.linear is None:
+            raise self._fail(f"undamped_frequency({index}) needs the linearised system",
+                             "set [analysis] modes = true and equilibrium = true")
+        K, M = (self.linear.S + self.linear.S.T) / 2, self.linear.M
+        w2 = scipy_eigh(K, M, eigvals_only=True) if M.size else np.zeros(0)
+        if not 1 <= index <= len(w2):
+            raise self._fail(f"mode {index} does not exist: the calc has {len(w2)} mode(s)",
+                             f"ask for a mode between 1 and {len(w2)}")
+        value = float(w2[index - 1])
+        if value < -1e-9 * max(1.0, float(np.max(np.abs(w2)))):
+            raise self._fail(f"undamped_frequency({index}) is not defined: the stiffness is negative "
+                             "in that direction (unstable)", "query another mode")
+        return float(np.sqrt(max(value, 0.0))) / (2 * np.pi)
 
     # ---- oscillation measures --------------------------------------------------
     def _oscillation(self, name: str, coordinate: str, history: History) -> float:
+        """period or log_decrement of a coordinate; crossings bracketed on the fine grid, refined on the dense solution."""
         names = self.spec.coordinate_names
         i = names.index(coordinate)
         n = len(names)
+        fine = self.fine()
         centre = self.equilibrium[coordinate] if self.equilibrium else float(np.mean(history.Q[i]))
         if name == "period":
-            times = self._crossings(lambda t: history.dense(t)[i] - centre, history.Q[i] - centre, history)
+            times = self._crossings(lambda t: history.dense(t)[i] - centre, fine.Q[i] - centre, fine.t,
+                                    history.dense is not None)
             if len(times) < 2:
                 raise self._fail(f"period({coordinate}) needs at least two upward crossings of its "
                                  "mean position in the time history", "lengthen [time_history] duration")
             return float((times[-1] - times[0]) / (len(times) - 1))
-        peaks_t = self._crossings(lambda t: -history.dense(t)[n + i], -history.QD[i], history)
-        peaks = [float(history.dense(t)[i] - centre) for t in peaks_t]
+        peaks_t = self._crossings(lambda t: -history.dense(t)[n + i], -fine.QD[i], fine.t,
+                                  history.dense is not None)
+        if history.dense is not None:
+            peaks = [float(history.dense(t)[i] - centre) for t in peaks_t]
+        else:
+            peaks = [float(np.interp(t, fine.t, fine.Q[i]) - centre) for t in peaks_t]
         peaks = [p for p in peaks if p > 0]
         if len(peaks) < 2:
             raise self._fail(f"log_decrement({coordinate}) needs at least two positive peaks",
                              "lengthen [time_history] duration or check the damping")
         return float(np.log(peaks[0] / peaks[-1]) / (len(peaks) - 1))
 
-    def _crossings(self, fn, sampled: np.ndarray, history: History) -> list[float]:
-        """Times where `fn` crosses zero upwards, refined on the dense solution."""
-        t = history.t
+    @staticmethod
+    def _crossings(fn, sampled: np.ndarray, t: np.ndarray, dense: bool) -> list[float]:
+        """Times where `fn` crosses zero upwards between grid times `t`, refined on the dense solution."""
         idx = np.nonzero((sampled[:-1] < 0) & (sampled[1:] >= 0))[0]
         out = []
         for k in idx:
             a, b = t[k], t[k + 1]
-            if history.dense is None or fn(a) * fn(b) > 0:
+            if not dense or fn(a) * fn(b) > 0:
                 out.append(float(a - sampled[k] * (b - a) / (sampled[k + 1] - sampled[k])))
             else:
                 out.append(float(optimize.brentq(fn, a, b, xtol=1e-14, rtol=1e-14)))
@@ -222,3 +307,27 @@ def output_gains(ctx: QueryContext, name: str):
     for group in (d.q, d.qd, d.qdd):
         values.append(np.array([float(numeric(diff_ae(expr, s), {**ctx.params, **at})) for s in group]))
     return tuple(values)
+
+
+def switch_arguments(expr: sp.Expr, derivation) -> list[sp.Expr]:
+    """Arguments whose sign change switches `expr`: of step, sign, abs (a − b for min, max).
+
+    The equations of motion are included when `expr` reads accelerations or
+    constraint forces, which jump where the equations switch.
+    """
+    d = derivation
+    sources = [expr]
+    if any(expr.has(s) for s in (*d.qdd, *d.lambdas)):
+        sources += [*d.f, *d.gamma, *d.M]
+    found = []
+    for source in sources:
+        for node in sp.preorder_traversal(source):
+            if isinstance(node, SWITCHES):
+                found.append(node.args[0])
+            elif isinstance(node, (sp.Min, sp.Max)):
+                found += [a - b for a, b in zip(node.args, node.args[1:])]
+    unique = []
+    for a in found:
+        if a.free_symbols and a not in unique:
+            unique.append(a)
+    return unique

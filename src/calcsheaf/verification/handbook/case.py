@@ -46,6 +46,10 @@ class Case:
     """A closed-form handbook case with its source and its self-test calc.
 
     `inputs` maps each input name to its SI unit; all are required.
+    `source` is the sheet-facing citation: book, edition and chapter topic, only as far
+    as they can be stated with certainty (never "(from memory)": the closed form itself
+    is the basis of the check).  `source_note` is the docs-facing remark on what of the
+    citation was recalled rather than checked, kept in docs/handbook.md.
     """
     key: str
     title: str
@@ -57,6 +61,7 @@ class Case:
     tolerance: float
     tolerance_reason: str
     selftest_calc: str
+    source_note: str = ""
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "inputs", _frozen(self.inputs))

@@ -17,12 +17,23 @@ FAMILY = "pendulums"
 
 SMALL_ANGLE_LIMIT = 0.1265   # rad: theta0^2/16 < 1e-3, the period error of the small-angle form
 
-MERIAM = ("J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, 7th ed., Wiley 2012, "
-          "simple and compound pendulum, sections 8/2 and 6/4 (from memory)")
-LANDAU = ("L. D. Landau and E. M. Lifshitz, Mechanics, 3rd ed., Pergamon 1976, section 11 "
-          "problem 1 (period of a simple pendulum of any amplitude), with the complete "
-          "elliptic integral K of modulus k = sin(theta0/2) as in M. Abramowitz and I. A. "
-          "Stegun, Handbook of Mathematical Functions, 1964, section 17.3 (from memory)")
+MERIAM = ('J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, 7th ed., '
+          'Wiley 2012, vibration of particles and rigid bodies (simple and compound '
+          'pendulum)')
+MERIAM_NOTE = ('Book and edition recalled (from memory); the section numbers 8/2 and '
+               '6/4 once cited here was recalled and is not checked against a copy, '
+               'so the sheets name the topic only. The closed form itself is tested '
+               'in tests/test_handbook_mechanics.py.')
+LANDAU = ('L. D. Landau and E. M. Lifshitz, Mechanics, 3rd ed., Pergamon 1976, motion '
+          'in one dimension (period of a pendulum of any amplitude); M. Abramowitz '
+          'and I. A. Stegun, Handbook of Mathematical Functions, 1964, elliptic '
+          'integrals')
+LANDAU_NOTE = ('Books and editions recalled (from memory); section 11 problem 1 of '
+               'Landau and Lifshitz and section 17.3 of Abramowitz and Stegun, once '
+               'cited here, were recalled and are not checked against a copy. The '
+               "closed form 4 sqrt(L/g) K(sin(theta0/2)) is evaluated with scipy's "
+               'ellipk and tested against numerical quadrature and integration in '
+               'tests/test_handbook_mechanics.py.')
 
 
 def small_angle_limit() -> ValidityLimit:
@@ -89,6 +100,7 @@ PENDULUM_SMALL = Case(
             ValidityLimit("positive length and gravity: L > 0, g > 0",
                           lambda p: p["L"] > 0 and p["g"] > 0)),
     source=MERIAM,
+    source_note=MERIAM_NOTE,
     tolerance=1e-3,
     tolerance_reason=("the small-angle period is short by about theta0^2/16, below 1e-3 "
                       "inside the validity limit; the linearised frequency itself is exact "
@@ -161,6 +173,7 @@ PENDULUM_LARGE = Case(
                       lambda p: p["theta0"] <= math.pi / 2),
     ),
     source=LANDAU,
+    source_note=LANDAU_NOTE,
     tolerance=1e-5,
     tolerance_reason=("exact for the rigid pendulum; extremes are read from a history sampled "
                       "at 0.5 ms, whose sampling error is below (omega dt)^2/8 ~ 1e-6, and "
@@ -230,6 +243,7 @@ PHYSICAL_PENDULUM = Case(
     limits=(small_angle_limit(),
             ValidityLimit("pivot off the centre of mass: d > 0", lambda p: p["d"] > 0)),
     source=MERIAM,
+    source_note=MERIAM_NOTE,
     tolerance=1e-3,
     tolerance_reason=("the small-angle period is short by about theta0^2/16, below 1e-3 "
                       "inside the validity limit; the linearised frequency and equivalent "

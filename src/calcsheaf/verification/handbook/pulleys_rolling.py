@@ -15,12 +15,20 @@ from .case import Case, Quantity, ValidityLimit
 
 FAMILY = "pulleys and rolling"
 
-MERIAM_ATWOOD = ("J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, 7th ed., "
-                 "Wiley 2012, chapter 6 plane kinetics of rigid bodies, fixed-axis rotation "
-                 "of a pulley carrying two masses (from memory)")
-MERIAM_ROLLING = ("J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, 7th ed., "
-                  "Wiley 2012, chapter 6 general plane motion, wheel rolling without slip "
-                  "down an incline (from memory)")
+MERIAM_ATWOOD = ('J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, 7th '
+                 'ed., Wiley 2012, plane kinetics of rigid bodies (fixed-axis '
+                 'rotation of a pulley carrying two masses)')
+MERIAM_ATWOOD_NOTE = ('Book and edition recalled (from memory); the chapter number 6 '
+                      'once cited here was recalled and is not checked against a '
+                      'copy, so the sheets name the topic only. The closed form '
+                      'itself is tested in tests/test_handbook_mechanics.py.')
+MERIAM_ROLLING = ('J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, '
+                  '7th ed., Wiley 2012, plane kinetics of rigid bodies (wheel rolling '
+                  'without slip down an incline)')
+MERIAM_ROLLING_NOTE = ('Book and edition recalled (from memory); the chapter number 6 '
+                       'once cited here was recalled and is not checked against a '
+                       'copy, so the sheets name the topic only. The closed form '
+                       'itself is tested in tests/test_handbook_mechanics.py.')
 
 
 def atwood_acceleration(p) -> float:
@@ -107,6 +115,7 @@ ATWOOD_SHEAVE = Case(
                       and p["g"] + atwood_acceleration(p) > 0),
     ),
     source=MERIAM_ATWOOD,
+    source_note=MERIAM_ATWOOD_NOTE,
     tolerance=1e-8,
     tolerance_reason=("exact: the motion is uniformly accelerated, so the integrator and the "
                       "constraint solve leave round-off only"),
@@ -198,6 +207,7 @@ ROLLING_INCLINE = Case(
                       lambda p: 0 <= p["alpha"] < math.pi / 2),
     ),
     source=MERIAM_ROLLING,
+    source_note=MERIAM_ROLLING_NOTE,
     tolerance=1e-8,
     tolerance_reason=("exact: the motion is uniformly accelerated, so the integrator and the "
                       "constraint solve leave round-off only"),

@@ -15,18 +15,38 @@ from .case import Case, Quantity, ValidityLimit
 
 FAMILY = "rotating systems"
 
-RAO_UNBALANCE = ("S. S. Rao, Mechanical Vibrations, 6th ed., Pearson 2017, section 3.7 "
-                 "Forced response with rotating unbalance (from memory)")
-RAO_TORSION = ("S. S. Rao, Mechanical Vibrations, 6th ed., Pearson 2017, section 2.3 Free "
-               "vibration of an undamped torsional system, k_t = G I_0 / l with "
-               "I_0 = pi d^4 / 32 (from memory)")
-MERIAM_COLLAR = ("J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, 7th ed., "
-                 "Wiley 2012, section 3/5 polar coordinates, collar sliding freely on a "
-                 "rod rotating at constant angular speed (from memory)")
-MERIAM_CONICAL = ("J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, 7th ed., "
-                  "Wiley 2012, conical pendulum, cos(theta) = g / (Omega^2 L) (from memory); "
-                  "small oscillation about the conical state, omega = Omega sin(theta), "
-                  "derived by linearising the relative motion (from memory)")
+RAO_UNBALANCE = ('S. S. Rao, Mechanical Vibrations, 6th ed., Pearson 2017, '
+                 'harmonically excited vibration (forced response with rotating '
+                 'unbalance)')
+RAO_UNBALANCE_NOTE = ('Book and edition recalled (from memory); the section number '
+                      '3.7 once cited here was recalled and is not checked against a '
+                      'copy, so the sheets name the topic only. The closed form '
+                      'itself is tested in tests/test_handbook_vibration.py.')
+RAO_TORSION = ('S. S. Rao, Mechanical Vibrations, 6th ed., Pearson 2017, free '
+               'vibration of an undamped torsional system (k_t = G I_0 / l, I_0 = pi '
+               'd^4 / 32)')
+RAO_TORSION_NOTE = ('Book and edition recalled (from memory); the section number 2.3 '
+                    'once cited here was recalled and is not checked against a copy, '
+                    'so the sheets name the topic only. The closed form itself is '
+                    'tested in tests/test_handbook_vibration.py.')
+MERIAM_COLLAR = ('J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, 7th '
+                 'ed., Wiley 2012, kinematics and kinetics of particles in polar '
+                 'coordinates (collar sliding freely on a rod rotating at constant '
+                 'angular speed)')
+MERIAM_COLLAR_NOTE = ('Book and edition recalled (from memory); the section number '
+                      '3/5 once cited here was recalled and is not checked against a '
+                      'copy, so the sheets name the topic only. The closed form '
+                      'itself is tested in tests/test_handbook_mechanics.py.')
+MERIAM_CONICAL = ('J. L. Meriam and L. G. Kraige, Engineering Mechanics: Dynamics, '
+                  '7th ed., Wiley 2012, kinetics of particles (conical pendulum, '
+                  'cos(theta) = g / (Omega^2 L)); the small-oscillation frequency '
+                  'omega = Omega sin(theta) is derived by linearising the relative '
+                  'motion, not taken from a book')
+MERIAM_CONICAL_NOTE = ('Book and edition recalled (from memory), and that it treats '
+                       'the conical pendulum; no section is cited. The '
+                       'small-oscillation frequency Omega sin(theta) is a derivation, '
+                       'not a citation; both closed forms are tested in '
+                       'tests/test_handbook_mechanics.py.')
 
 
 def unbalance_dynamic_stiffness(p) -> float:
@@ -113,6 +133,7 @@ ROTATING_UNBALANCE = Case(
         ValidityLimit("damped, so a steady state exists: c > 0", lambda p: p["c"] > 0),
     ),
     source=RAO_UNBALANCE,
+    source_note=RAO_UNBALANCE_NOTE,
     tolerance=1e-6,
     tolerance_reason=("exact steady state of the linear model; read from the time history "
                       "after the transient decayed by exp(-25), so the integrator tolerance "
@@ -188,6 +209,7 @@ TORSIONAL_OSCILLATOR = Case(
                       lambda p: min(p["J"], p["G"], p["d"], p["L"]) > 0),
     ),
     source=RAO_TORSION,
+    source_note=RAO_TORSION_NOTE,
     tolerance=1e-8,
     tolerance_reason=("exact for the linear model: equilibrium and eigenproblem leave "
                       "round-off only; period and peak twist come from a history sampled "
@@ -271,6 +293,7 @@ COLLAR_ROTATING_ARM = Case(
         ValidityLimit("released off the axis: r0 > 0", lambda p: p["r0"] > 0),
     ),
     source=MERIAM_COLLAR,
+    source_note=MERIAM_COLLAR_NOTE,
     tolerance=1e-7,
     tolerance_reason=("exact solution of the frictionless model; the integrator runs at "
                       "rtol 1e-10 over 1.5 e-folding times and the drive torque comes from "
@@ -334,6 +357,7 @@ CONICAL_PENDULUM = Case(
                       lambda p: p["Omega"] ** 2 * p["L"] > p["g"]),
     ),
     source=MERIAM_CONICAL,
+    source_note=MERIAM_CONICAL_NOTE,
     tolerance=1e-8,
     tolerance_reason=("exact: the equilibrium solver and the eigenproblem of the "
                       "linearised relative motion leave round-off only"),

@@ -23,7 +23,8 @@ def case_section(case: Case) -> str:
     for q in case.provides.values():
         lines.append(f"| `{q.name}` | {q.unit} | ${_cell(q.formula)}$ |")
     lines += ["", "Validity limits: " + "; ".join(lim.text for lim in case.limits) + ".", "",
-              f"Source: {case.source}.", "",
+              f"Source (as printed on the sheets): {case.source}.", "",
+              f"Note on the source: {case.source_note}", "",
               f"Tolerance: {case.tolerance:g} ({case.tolerance_reason}).", ""]
     return "\n".join(lines)
 
