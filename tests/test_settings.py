@@ -85,3 +85,16 @@ def test_a_bad_setting_stops_build_before_anything_is_written(tmp_path, monkeypa
     err = capsys.readouterr().err
     assert "environment: SOURCE_DATE_EPOCH: '2026-12-03' is not a date" in err and "Traceback" not in err
     assert sorted(p.name for p in root.iterdir()) == ["calcs", "project.toml"]
+
+
+@pytest.mark.parametrize("name, value, words", [
+    ("CALCSHEAF_TEMPLATE_TIME_LIMIT", "0", "is not a number of seconds from 0.5 to 3600"),
+    ("CALCSHEAF_TEMPLATE_MEMORY_LIMIT_MB", "-200", "is not a number of MiB from 16 to"),
+    ("CALCSHEAF_TEMPLATE_OUTPUT_LIMIT_MB", "lots", "is not a number of MB from 0.01 to 10000"),
+    ("CALCSHEAF_CACHE_KEY_FILE", "cache.key", "is not an absolute path"),
+])
+def test_template_limits_and_the_cache_key_file_are_checked_too(monkeypatch, name, value, words):
+    monkeypatch.setenv(name, value)
+    with pytest.raises(InputError) as info:
+        settings.validate()
+    assert info.value.message.startswith(f"environment: {name}: {value!r} {words}")
