@@ -18,7 +18,7 @@ import sympy.parsing.sympy_parser as sympy_parser
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from calcsheaf.calcfile.expressions import Scope, Where, parse_expression, symbol
+from calcsheaf.calcfile.expressions import Scope, Where, check_with_values, parse_expression, symbol
 from calcsheaf.errors import ExpressionError
 
 NAMES = frozenset({"x", "k", "m", "c", "E", "I", "N", "S", "Q", "gamma", "t"})
@@ -307,3 +307,53 @@ def _combine(children):
 @given(st.recursive(ATOMS, _combine, max_leaves=12))
 def test_fuzz_well_formed_expressions(text):
     parses_or_refuses(text)
+
+
+# ---------------------------------------------------------------------------------------
+# What a checker would read differently from the parser (issue 13, item 9)
+# ---------------------------------------------------------------------------------------
+@pytest.mark.parametrize("text, words", [
+    ("k*x #*1.5", "'#' inside an expression would start a comment, so '#*1.5' would be ignored"),
+    ("k*x  # DAF 1.5", "'#' inside an expression would start a comment"),
+    ("ｋ*x", "U+FF4B FULLWIDTH LATIN SMALL LETTER K"),
+    ("k*x²", "U+00B2 SUPERSCRIPT TWO"),
+    ("k*x − m", "U+2212 MINUS SIGN"),
+    ("k\u00a0*x", "U+00A0 NO-BREAK SPACE"),
+])
+def test_text_the_parser_would_read_differently_is_refused(text, words):
+    with pytest.raises(ExpressionError) as info:
+        parse(text)
+    assert words in info.value.problem
+
+
+def test_a_fullwidth_letter_is_not_folded_into_a_declared_name():
+    """Python's parser NFKC-folds identifiers: 'ｍ' would silently become the parameter 'm'."""
+    with pytest.raises(ExpressionError) as info:
+        parse("ｍ*x")
+    assert "type it as the plain ASCII 'm'" in info.value.fix
+
+
+@pytest.mark.parametrize("text, values", [
+    ("sqrt(k/m)", {"k": 1000.0, "m": 10.0}),
+    ("asin(c/k)*x", {"c": 0.5, "k": 1.0}),
+    ("(c - k)**2", {"c": 1.0, "k": 3.0}),              # a negative base to an integer power
+    ("log(k)*x + acos(c)", {"k": 2.0, "c": -1.0}),
+])
+def test_functions_of_parameters_with_real_values_pass(text, values):
+    check_with_values(parse(text), values)
+
+
+@pytest.mark.parametrize("text, values, words", [
+    ("asin(c/k)*x", {"c": 2.0, "k": 1.0}, "'asin(c/k)' is not a real number with the parameter values (asin of 2)"),
+    ("acos(c)", {"c": -1.5}, "(acos of -1.5)"),
+    ("log(c - k)", {"c": 1.0, "k": 2.0}, "(log of -1)"),
+    ("sqrt(c - k)*x", {"c": 1.0, "k": 2.0}, "is not a real number"),
+    ("(c - k)**0.5", {"c": 1.0, "k": 2.0}, "is not a real number"),
+    ("x/(c - k)", {"c": 2.0, "k": 2.0}, "is not a finite number"),
+])
+def test_functions_of_parameters_without_a_real_value_are_refused(text, values, words):
+    with pytest.raises(ExpressionError) as info:
+        check_with_values(parse(text), values, Where(file="c.toml", line=4, key="energy.potential"))
+    assert words in info.value.problem
+    assert info.value.location == "c.toml:4" and info.value.key == "energy.potential"
+    assert "asin and acos need arguments from -1 to 1" in info.value.fix

@@ -200,3 +200,31 @@ def test_a_read_only_parent_folder_is_a_message(tmp_path):
     assert code == 1 and "Traceback" not in text and "internal error" not in text
     assert "Permission denied (EACCES). Fix: give yourself write permission" in text
     assert list(locked.iterdir()) == []
+
+
+def test_disk_full_during_a_real_build_keeps_the_previous_site(tmp_path, monkeypatch):
+    """End to end: a rebuild that runs out of space while writing the new site says so and
+    leaves the previous site byte-identical, with no temporary folder beside it."""
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1780000000")
+    root = tmp_path / "proj"
+    (root / "calcs").mkdir(parents=True)
+    (root / "project.toml").write_text(PROJECT_TOML)
+    valid = (Path(__file__).parent / "bad_inputs" / "valid.toml").read_text()
+    (root / "calcs" / "a.toml").write_text(valid)
+    code, text = run("build", str(root))
+    assert code == 0, text
+    before = tree(root / "_site")
+    (root / "calcs" / "a.toml").write_text(valid.replace("Mass on a spring", "Edited mass"))
+    real_write = Path.write_bytes
+
+    def full(self, data):
+        if "._site.tmp-" in str(self) and self.name != MARKER:
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(self))
+        return real_write(self, data)
+
+    monkeypatch.setattr(Path, "write_bytes", full)
+    code, text = run("build", str(root))
+    assert code == 1 and "Traceback" not in text and "internal error" not in text
+    assert "No space left on device (ENOSPC). Fix: free space on that disk" in text
+    assert tree(root / "_site") == before
+    assert not [p.name for p in root.iterdir() if p.name.startswith(("._site.tmp", "._site.old"))]

@@ -41,6 +41,7 @@ def served(tmp_path, monkeypatch):
     root = tmp_path / "p"
     (root / "calcs").mkdir(parents=True)
     (root / "project.toml").write_text(PROJECT_TOML)
+    (root / "calcs" / "a.toml").write_text("# the build is faked: not analysed\n")
     site = root / "_site"
     (site / "C-1").mkdir(parents=True)
     (site / "static").mkdir()

@@ -38,7 +38,7 @@ def test_a_bad_value_is_refused_with_the_variable_and_a_fix(monkeypatch, name, v
             "CALCSHEAF_KDF_LOG2N": lambda: settings.kdf_log2n(17, 10)}[name]
     with pytest.raises(InputError) as info:
         read()
-    assert info.value.message.startswith(f"environment: {name}: {name}={value!r} {words}")
+    assert info.value.message.startswith(f"environment: {name}: {value!r} {words}")
     assert f"or unset {name} for the default" in info.value.fix
 
 
@@ -69,5 +69,32 @@ def test_a_negative_memory_limit_stops_the_command_with_a_message(tmp_path):
     done = subprocess.run([sys.executable, "-m", "calcsheaf", "check", str(root)], capture_output=True,
                           text=True, env=env, timeout=300)
     assert done.returncode == 1 and "Traceback" not in done.stderr, done.stderr
-    assert "CALCSHEAF_CALC_MEMORY_LIMIT_GB='-1' is not a number of GiB" in done.stderr
+    assert ("environment: CALCSHEAF_CALC_MEMORY_LIMIT_GB: '-1' is not a number of GiB from 0.25 "
+            "to 1048576") in done.stderr
     assert "Fix: set it to e.g. 4" in done.stderr
+
+
+def test_a_bad_setting_stops_build_before_anything_is_written(tmp_path, monkeypatch, capsys):
+    from calcsheaf.cli import main
+
+    root = tmp_path / "p"
+    (root / "calcs").mkdir(parents=True)
+    (root / "project.toml").write_text('[project]\nnumber = "P-1"\nname = "x"\n')
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "2026-12-03")
+    assert main(["build", str(root)]) == 1
+    err = capsys.readouterr().err
+    assert "environment: SOURCE_DATE_EPOCH: '2026-12-03' is not a date" in err and "Traceback" not in err
+    assert sorted(p.name for p in root.iterdir()) == ["calcs", "project.toml"]
+
+
+@pytest.mark.parametrize("name, value, words", [
+    ("CALCSHEAF_TEMPLATE_TIME_LIMIT", "0", "is not a number of seconds from 0.5 to 3600"),
+    ("CALCSHEAF_TEMPLATE_MEMORY_LIMIT_MB", "-200", "is not a number of MiB from 16 to"),
+    ("CALCSHEAF_TEMPLATE_OUTPUT_LIMIT_MB", "lots", "is not a number of MB from 0.01 to 10000"),
+    ("CALCSHEAF_CACHE_KEY_FILE", "cache.key", "is not an absolute path"),
+])
+def test_template_limits_and_the_cache_key_file_are_checked_too(monkeypatch, name, value, words):
+    monkeypatch.setenv(name, value)
+    with pytest.raises(InputError) as info:
+        settings.validate()
+    assert info.value.message.startswith(f"environment: {name}: {value!r} {words}")

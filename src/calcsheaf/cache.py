@@ -29,6 +29,7 @@ import secrets
 import stat
 from pathlib import Path
 
+from . import settings
 from .fingerprint import code_fingerprint
 
 FOLDER = ".calcsheaf-cache"
@@ -50,9 +51,9 @@ def key(*parts: bytes | str) -> str:
 def cache_key_file() -> Path:
     """This user's cache secret: $CALCSHEAF_CACHE_KEY_FILE, else
     $XDG_CONFIG_HOME/calcsheaf/cache.key, else ~/.config/calcsheaf/cache.key."""
-    override = os.environ.get(KEY_FILE_ENV)
-    if override:
-        return Path(override)
+    override = settings.cache_key_file()
+    if override is not None:
+        return override
     base = os.environ.get("XDG_CONFIG_HOME") or str(Path.home() / ".config")
     return Path(base) / "calcsheaf" / "cache.key"
 

@@ -163,6 +163,7 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return 2
     try:
+        settings.validate()
         return _run(args)
     except UsageError as exc:
         print(f"calcsheaf: {exc.message}", file=sys.stderr)

@@ -89,9 +89,13 @@ def _watch(root: Path, target: Path, out, polls: int | None) -> None:
 
 
 def _key(root: Path, target: Path) -> str | None:
-    """The input key, or None while a file cannot be read (an editor is replacing it)."""
+    """The input key; the refusal itself when the project cannot be read as one (so that
+    a change to or from that state builds, and the build reports it); None while a file
+    cannot be read at all (an editor is replacing it)."""
     try:
         return input_key(root, target)
+    except CalcsheafError as exc:
+        return f"refused: {exc.message}"
     except OSError:
         return None
 

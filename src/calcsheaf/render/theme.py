@@ -30,7 +30,7 @@ import jinja2.utils
 from jinja2.sandbox import ImmutableSandboxedEnvironment, SecurityError
 from markupsafe import Markup
 
-from calcsheaf import model
+from calcsheaf import model, settings
 from calcsheaf.errors import BuildError
 from calcsheaf.render import formatting
 from calcsheaf.render.markdown_text import markdown_html
@@ -222,25 +222,11 @@ class Limits:
     output_chars: int
 
 
-def _positive(name: str, default: float) -> float:
-    text = os.environ.get(name)
-    if text is None or text.strip() == "":
-        return default
-    try:
-        value = float(text)
-    except ValueError:
-        value = float("nan")
-    if not math.isfinite(value) or value <= 0:
-        raise BuildError(f"{text!r} is not a positive number", file="environment", key=name,
-                         fix=f"set {name} to a positive number, or unset it for the default {default:g}")
-    return value
-
-
 def limits() -> Limits:
-    """The limits of one template render, from the environment (BuildError when malformed)."""
-    return Limits(time_s=_positive(TIME_ENV, 60.0),
-                  memory_bytes=int(_positive(MEMORY_ENV, 1024.0) * 2 ** 20),
-                  output_chars=int(_positive(OUTPUT_ENV, 64.0) * 10 ** 6))
+    """The limits of one template render, from the environment (settings: InputError when malformed)."""
+    return Limits(time_s=settings.template_time_limit_s(),
+                  memory_bytes=settings.template_memory_limit_bytes(),
+                  output_chars=settings.template_output_chars())
 
 
 class _Overrun(Exception):
