@@ -19,7 +19,7 @@ from calcsheaf.render.cautions import (DRAFT_MARK, GENERAL, HAZARD_MARK_LEAD, HA
 from calcsheaf.render.equation import Equation, inline, layout
 from calcsheaf.render.mathml import equation_mathml
 from calcsheaf.render.mathsvg import EquationImages, equation_key
-from calcsheaf.render.symbols import name_html
+from calcsheaf.calcfile.names import name_html
 
 SECTIONS = (
     ("revisions", "Revision history"),

@@ -16,7 +16,7 @@ import sympy
 from sympy.printing.latex import LatexPrinter, accepted_latex_functions
 from sympy.printing.precedence import PRECEDENCE
 
-from ..calcfile.names import DOTTED, name_html, name_latex  # noqa: F401 (name_html re-exported)
+from ..calcfile.names import DOTTED, name_latex
 
 
 def symbol_names(expr) -> dict[sympy.Symbol, str]:

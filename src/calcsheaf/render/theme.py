@@ -34,7 +34,7 @@ from calcsheaf import model, settings
 from calcsheaf.errors import BuildError
 from calcsheaf.render import formatting
 from calcsheaf.render.markdown_text import markdown_html
-from calcsheaf.render.symbols import name_html
+from calcsheaf.calcfile.names import name_html
 
 MARKER = "calc.html.j2"
 STATIC = "static"

@@ -187,7 +187,7 @@ def residuals_at(inputs: _Inputs, system, st: _State) -> list[Residual]:
     out = []
     Ma = M @ a
     for j, name in enumerate(inputs.names):
-        (Ea, terms_a), (E0, terms_0) = with_a[j], without[j]
+        (Ea, _), (E0, terms_0) = with_a[j], without[j]
         out.append(Residual(_relative(f[j], -E0, terms_0), f"f of {name}"))
         inertia = [abs(M[j, k] * a[k]) for k in range(inputs.n)]
         out.append(Residual(_relative(Ma[j], Ea - E0, inertia + [Ea - E0]), f"M of {name}"))
