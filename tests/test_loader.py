@@ -254,3 +254,9 @@ def test_a_calcs_folder_without_toml_files_names_what_it_found(tmp_path):
         calc_files(root)
     assert info.value.message == (f"{root}/calcs: has no calc files (found c.tml: a calc file's name "
                                   "must end in .toml) Fix: add calc files named calcs/<name>.toml")
+
+
+def test_a_name_with_a_trailing_newline_is_refused(tmp_path):
+    """Names are matched as whole strings: "F\\n" is not the name F."""
+    path = write(tmp_path, 'points = 200', 'points = 200\n\n[[output]]\nname = "F\\n"\nexpr = "k*x"\nunit = "N"')
+    assert any("is not a valid name" in m and "output[1].name" in m for m in messages(path))

@@ -26,7 +26,7 @@ from .toml_source import read_toml, value_column
 from .units import (DIMENSIONLESS, DimensionChecker, describe, parse_quantity, parse_unit,
                     si_factor, si_unit_of, si_unit_text, to_si, ureg)
 
-NAME = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
+NAME = re.compile(r"[A-Za-z][A-Za-z0-9_]*")   # whole string: fullmatch
 HAZARDS = ("suspended_load", "people_under_load", "rotating_machinery")
 SECOND_METHODS = ("LSODA", "BDF", "Radau")
 
@@ -245,7 +245,7 @@ class _CalcLoader:
         value = self.string(key, value)
         if value is None:
             return None
-        if not NAME.match(value):
+        if not NAME.fullmatch(value):
             self.problem(key, f"'{value}' is not a valid name",
                          "use letters, digits and _ starting with a letter, e.g. F_iso")
             return None
