@@ -21,7 +21,7 @@ from .isolation import stage
 from .mechanics import frequency, linearise as lin, simulate
 from .mechanics.codegen import NumericSystem, numeric
 from .mechanics.energy import audit
-from .mechanics.equilibrium import find_equilibrium
+from .mechanics.equilibrium import FROZEN, at_start, find_equilibrium
 from .mechanics.lagrange import derive
 from .software import versions
 from .verification.checks import judge_criteria, run_crosschecks
@@ -142,8 +142,9 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         checks.append(m.Check("equilibrium", "static equilibrium", False, exc.message))
         return
     names = spec.coordinate_names
+    about = at_start(derivation) if point.kind == FROZEN else derivation   # loads at t = 0⁺
     try:
-        linear = lin.linearise(derivation, ctx.params, point.q, point.lambdas, point.qd, point.time)
+        linear = lin.linearise(about, ctx.params, point.q, point.lambdas, point.qd, point.time)
         stability = lin.stability(linear)
         modes = lin.modes(linear, names) if spec.analysis.modes else ()
     except (AnalysisError, np.linalg.LinAlgError) as exc:
@@ -162,6 +163,7 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         expected_unstable=expect,
         multiplier_units={c.name: c.unit for c in spec.constraints})
     ctx.equilibrium = {n: float(v) for n, v in zip(names, point.q)}
+    ctx.equilibrium_kind = point.kind
     checks.append(m.Check("equilibrium", "static equilibrium" if point.kind != "steady motion"
                           else "steady motion (relative equilibrium)", True,
                           f"found ({point.kind}, t = {point.time:g} s), residual {point.residual:.2e}; "
@@ -180,22 +182,29 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
 
 
 def _stability_check(spec, stability) -> m.Check:
-    """Passes when the equilibrium is as stable as the calc expects ([analysis] expect_unstable)."""
+    """Passes when the equilibrium is as stable as the calc expects ([analysis] expect_unstable).
+
+    A failure names where to act: the expect_unstable line when the file has one, else
+    the [analysis] table to add (or, when it exists without the key, the key to add there)."""
     expect = spec.analysis.expect_unstable
-    where = f"{spec.path}:{spec.line('analysis') or spec.line('energy')}: analysis.expect_unstable"
     if stability.stable and not expect:
         return m.Check("stability", "stability of the equilibrium", True, stability.verdict)
     if not stability.stable and expect:
         return m.Check("stability", "stability of the equilibrium", True,
                        f"{stability.verdict} (expected: [analysis] expect_unstable = true)")
     if expect:
+        where = f"{spec.path}:{spec.line('analysis.expect_unstable')}: analysis.expect_unstable"
         return m.Check("stability", "stability of the equilibrium", False,
                        f"{where}: the calc expects an unstable equilibrium but found {stability.verdict}. "
                        "Fix: check the model, or remove expect_unstable from [analysis]")
+    if spec.line("analysis") is not None:
+        where, add = (f"{spec.path}:{spec.line('analysis')}: analysis",
+                      "add expect_unstable = true under [analysis]")
+    else:
+        where, add = (f"{spec.path}: analysis", "add an [analysis] table with expect_unstable = true")
     return m.Check("stability", "stability of the equilibrium", False,
                    f"{where}: {stability.verdict}. Fix: change the design so that it is stable, or, "
-                   "when the calc is about an unstable state (e.g. before a control acts), set "
-                   "[analysis] expect_unstable = true")
+                   f"when the calc is about an unstable state (e.g. before a control acts), {add}")
 
 
 def _frequency_response(spec, ctx: QueryContext, report) -> None:
