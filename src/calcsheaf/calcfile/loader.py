@@ -17,7 +17,7 @@ import sympy as sp
 from .. import identifiers
 from ..errors import CalcsheafError, InputError, ProblemList
 from ..model import Assumption, Reference
-from . import spec as S
+from . import rates, spec as S
 from .expressions import (RESERVED_NAMES, Scope, Where, check_with_values, parse_expression,
                           query_name, velocity)
 from .names import display_forms
@@ -101,6 +101,8 @@ class _CalcLoader:
         self.values: dict[str, float] = {}     # parameter values, SI
         # [[result]] names whose value is a frequency in Hz, for default units of later uses
         self.hertz: set[str] = set()
+        # parameters and results that are angular rates or cyclic frequencies (see rates)
+        self.rate_kinds: dict[str, str] = {}
 
     # ---- reporting ---------------------------------------------------------
     def where(self, key: str) -> Where:
@@ -442,6 +444,8 @@ class _CalcLoader:
                 continue
             self.dims[name] = quantity.dimensionality
             self.values[name] = to_si(quantity)
+            if rates.unit_kind(quantity.units):
+                self.rate_kinds[name] = rates.unit_kind(quantity.units)
             out.append(S.Parameter(name=name, given=str(row["value"]), value=to_si(quantity),
                                    unit=si_unit_of(quantity),
                                    dimension=quantity.dimensionality, source=source,
@@ -690,8 +694,19 @@ class _CalcLoader:
         self.dims[name] = DIMENSIONLESS if dim is None else dim
         if unit_text == "Hz":
             self.hertz.add(name)
+        self._rates(f"{key}.expr", expr, unit, unit_text)
+        kind = rates.unit_kind(unit) or rates.kind_of(expr, self.rate_kinds)
+        if kind in (rates.ANGULAR, rates.CYCLIC):
+            self.rate_kinds[name] = kind
         return S.NamedExpr(name=name, expr=expr, text=str(row["expr"]), unit=unit_text,
                            factor=si_factor(unit), label=self.label(f"{key}.label", row.get("label")))
+
+    def _rates(self, key: str, expr: sp.Expr, unit, unit_text: str) -> None:
+        """A problem when `expr` shown in `unit` mixes angular rates and cyclic frequencies
+        without an explicit 2*pi (see rates)."""
+        mixed = rates.mixing(expr, unit, unit_text, self.rate_kinds)
+        if mixed:
+            self.problem(key, *mixed)
 
     def outputs(self, params, coords, constraints, names):
         out = []
@@ -754,6 +769,12 @@ class _CalcLoader:
             unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text, dim))
             if unit is None:
                 continue
+            mixed = rates.compared(demand, capacity, self.rate_kinds)
+            if mixed:
+                self.problem(f"{key}.capacity", *mixed)
+            else:
+                self._rates(f"{key}.demand", demand, unit, unit_text)
+                self._rates(f"{key}.capacity", capacity, unit, unit_text)
             out.append(S.Criterion(name=self.string(f"{key}.name", row.get("name"), "?"),
                                    demand=demand, demand_text=str(row["demand"]), capacity=capacity,
                                    capacity_text=str(row["capacity"]), unit=unit_text,
