@@ -103,6 +103,7 @@ class _CalcLoader:
         self.hertz: set[str] = set()
         # parameters and results that are angular rates or cyclic frequencies (see rates)
         self.rate_kinds: dict[str, str] = {}
+        self.angle_units: dict[str, str] = {}  # coordinates given in an angle unit: name -> unit
 
     # ---- reporting ---------------------------------------------------------
     def where(self, key: str) -> Where:
@@ -407,6 +408,8 @@ class _CalcLoader:
                 continue
             dim = unit.dimensionality
             self.dims[name] = dim
+            if dim == DIMENSIONLESS and "radian" in str(ureg.get_root_units(unit)[1]):
+                self.angle_units[name] = row["unit"]
             self.dims[f"dot({name})"] = dim / ureg.second.dimensionality
             self.dims[f"ddot({name})"] = dim / ureg.second.dimensionality ** 2
             out.append(S.Coordinate(name=name, unit=row["unit"], si_unit=si_unit_text(dim),
@@ -686,7 +689,7 @@ class _CalcLoader:
         unit_text = self.string(f"{key}.unit", row.get("unit"), None)
         if unit_text is None:
             unit_text = _frequency_unit(expr, self.hertz) if dim == ureg.hertz.dimensionality else None
-            unit_text = unit_text or si_unit_text(dim)
+            unit_text = unit_text or _angle_unit(expr, self.angle_units) or si_unit_text(dim)
         unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text,
                                                        DIMENSIONLESS if dim is None else dim))
         if unit is None:
@@ -805,6 +808,20 @@ class _CalcLoader:
 
 
 _HERTZ_QUERIES = frozenset({"natural_frequency", "damped_frequency", "frf_peak_frequency"})
+
+
+_POSITION_QUERIES = frozenset({"equilibrium", "initial", "final", "at", "max", "min", "peak",
+                               "mean", "rms"})
+
+
+def _angle_unit(expr: sp.Expr, angles: dict[str, str]) -> str | None:
+    """Default unit of a query of an angle coordinate (equilibrium(theta), max(theta), ...):
+    the coordinate's own unit (rad, deg), where the dimension alone would give "1"."""
+    if isinstance(expr, sp.Function) and query_name(expr.func) in _POSITION_QUERIES:
+        target = expr.args[0]
+        if isinstance(target, sp.Symbol):
+            return angles.get(target.name)
+    return None
 
 
 def _force_unit(dim) -> str:
