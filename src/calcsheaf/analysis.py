@@ -21,7 +21,7 @@ from .isolation import stage
 from .mechanics import frequency, linearise as lin, simulate
 from .mechanics.codegen import NumericSystem, numeric
 from .mechanics.energy import audit
-from .mechanics.equilibrium import FROZEN, at_start, find_equilibrium
+from .mechanics.equilibrium import at_start, find_equilibrium
 from .mechanics.lagrange import derive
 from .software import versions
 from .verification.checks import judge_criteria, run_crosschecks
@@ -142,7 +142,7 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         checks.append(m.Check("equilibrium", "static equilibrium", False, exc.message))
         return
     names = spec.coordinate_names
-    about = at_start(derivation) if point.kind == FROZEN else derivation   # loads at t = 0⁺
+    about = at_start(derivation)        # steps and signs switching at t = 0 taken at t = 0⁺
     try:
         linear = lin.linearise(about, ctx.params, point.q, point.lambdas, point.qd, point.time)
         stability = lin.stability(linear)

@@ -21,7 +21,8 @@ Three kinds, chosen from the equations, each saying which time it is taken at
   a step(a) or sign(a) whose argument a(q, t) is zero at t0 takes its right
   limit, the sign of the first non-zero t-derivative of a at t0 (so a load
   switched on with step(t) acts in full, not with step(0) = ½).  The
-  linearisation about it uses the same right limits (`at_start`).
+  linearisation about every kind of equilibrium uses the same right limits
+  (`at_start`), so a stiffness switched on with step(t) counts in full.
 
 The search starts from the calc's initial state (hybr, then lm).
 """
@@ -139,7 +140,7 @@ def right_limit(expr: sp.Expr, t0: float = T0) -> sp.Expr:
 
 def at_start(derivation):
     """The derivation with M, f and γ taken just after t0 (`right_limit`), for the
-    linearisation about a time-frozen equilibrium."""
+    linearisation about the equilibrium (unchanged when nothing switches at t0)."""
     d = derivation
     return replace(d, M=d.M.applyfunc(right_limit), f=d.f.applyfunc(right_limit),
                    gamma=d.gamma.applyfunc(right_limit))
