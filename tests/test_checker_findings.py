@@ -357,3 +357,28 @@ def test_step_load_reference_by_solve_ivp_matches_the_closed_forms():
     peaks = x[tops] - F0 / K
     assert np.diff(t[tops]).mean() == pytest.approx(2 * math.pi / WD, rel=1e-4)
     assert math.log(peaks[0] / peaks[1]) == pytest.approx(2 * math.pi * ZETA / math.sqrt(1 - ZETA ** 2), rel=1e-4)
+
+
+def test_coarse_sampling_note_of_a_motionless_record_names_no_empty_series(tmp_path):
+    # At rest from the start (x0 = 0, no load): no series moves, but 10 samples in 1 s
+    # are fewer than 20 per period of f_n = √(k/m)/2π = 1.59 Hz (closed form), so the note
+    # is given, without the departure clause that needs a named series.
+    report = report_of(tmp_path, calc("""
+    [parameters]
+    m = "1 kg"
+    k = "100 N/m"
+    [coordinates]
+    x = "mm"
+    [energy]
+    kinetic = "m/2*dot(x)**2"
+    potential = "k/2*x**2"
+    [initial]
+    x = "0 mm"
+    "dot(x)" = "0 m/s"
+    [time_history]
+    duration = "1 s"
+    points = 10
+    """))
+    note = report.time_history.sampling_note
+    assert note.startswith("coarse sampling: 10 samples (every 0.111 s) give 5.65 per period")
+    assert "range of ." not in note and "departs" not in note
