@@ -206,6 +206,8 @@ def test_criterion_comparing_a_frequency_with_rpm_is_refused(tmp_path):
     ("natural_frequency(1)", "rpm"),            # the converse: Hz shown as rpm
     ("frf_peak_frequency(x) + f_run", None),     # a sum of the two kinds
     ("2*f_run", "kHz"),                         # an angular rate shown in kHz
+    ("max(natural_frequency(1), f_run)", None),  # through max()
+    ("abs(f_run)/3", "Hz"),                     # through abs()
 ])
 def test_other_mixings_are_refused(tmp_path, expr, unit):
     row = f'[[result]]\nname = "r"\nexpr = "{expr}"\n' + (f'unit = "{unit}"\n' if unit else "")
@@ -229,6 +231,14 @@ def test_explicit_2pi_conversions_load_and_give_the_right_values(tmp_path):
     [[result]]
     name = "ratio"
     expr = "2*pi*natural_frequency(1)/f_run"
+    [[result]]
+    name = "k_run"
+    expr = "m*f_run**2"
+    unit = "N/m"
+    [[result]]
+    name = "c_like"
+    expr = "k_run/natural_frequency(1)"
+    unit = "N*s/m"
     [[criterion]]
     name = "f1 below a third of the running speed"
     demand = "natural_frequency(1)"
@@ -238,6 +248,8 @@ def test_explicit_2pi_conversions_load_and_give_the_right_values(tmp_path):
     assert result(report, "f_hz") == pytest.approx(1480 / 60, rel=1e-12)
     assert result(report, "w1") == pytest.approx(f1 * 60, rel=1e-9)
     assert result(report, "ratio") == pytest.approx(f1 / (1480 / 60), rel=1e-9)
+    # a stiffness m Ω² is not a rate: it carries no kind into later expressions
+    assert result(report, "c_like") == pytest.approx(10 * (1480 * 2 * math.pi / 60) ** 2 / f1, rel=1e-9)
     (row,) = report.criteria
     assert row.ratio == pytest.approx(f1 / (1480 / 60 / 3), rel=1e-9) and not row.passed
 

@@ -699,8 +699,8 @@ class _CalcLoader:
             self.hertz.add(name)
         self._rates(f"{key}.expr", expr, unit, unit_text)
         kind = rates.unit_kind(unit) or rates.kind_of(expr, self.rate_kinds)
-        if kind in (rates.ANGULAR, rates.CYCLIC):
-            self.rate_kinds[name] = kind
+        if dim == ureg.hertz.dimensionality and kind in (rates.ANGULAR, rates.CYCLIC):
+            self.rate_kinds[name] = kind      # only values of 1/s carry a kind onwards
         return S.NamedExpr(name=name, expr=expr, text=str(row["expr"]), unit=unit_text,
                            factor=si_factor(unit), label=self.label(f"{key}.label", row.get("label")))
 

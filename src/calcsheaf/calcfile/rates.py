@@ -46,7 +46,7 @@ def unit_kind(unit) -> str | None:
 def kind_of(expr: sp.Expr, kinds: dict[str, str]) -> str | None:
     """The kind of an expression (see the module text); "mixed" when it mixes the two
     kinds without a π conversion.  `kinds`: name -> kind of parameters and results."""
-    if isinstance(expr, sp.Add) or (isinstance(expr, sp.Function) and expr.func in (sp.Abs, sp.Min, sp.Max)):
+    if isinstance(expr, (sp.Add, sp.Abs, sp.Min, sp.Max)):
         found = {kind_of(a, kinds) for a in expr.args} - {None}
         if "mixed" in found or len(found) > 1:
             return "mixed"
@@ -87,7 +87,7 @@ def _atom_kind(base: sp.Expr, exponent: sp.Expr, kinds: dict[str, str]) -> str |
         return CYCLIC
     if name == "period" and exponent.is_negative:
         return CYCLIC
-    if isinstance(base, (sp.Add, sp.Function)) and base.func in (sp.Add, sp.Abs, sp.Min, sp.Max):
+    if isinstance(base, (sp.Add, sp.Abs, sp.Min, sp.Max)):
         return kind_of(base, kinds)
     return None
 
