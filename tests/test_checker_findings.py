@@ -204,6 +204,7 @@ def test_criterion_comparing_a_frequency_with_rpm_is_refused(tmp_path):
 @pytest.mark.parametrize("expr, unit", [
     ("natural_frequency(1)/f_run", None),       # a ratio off by 2π
     ("natural_frequency(1)", "rpm"),            # the converse: Hz shown as rpm
+    ("1/period(x)", "rad/s"),                   # 1/period is in Hz
     ("frf_peak_frequency(x) + f_run", None),     # a sum of the two kinds
     ("2*f_run", "kHz"),                         # an angular rate shown in kHz
     ("max(natural_frequency(1), f_run)", None),  # through max()

@@ -554,7 +554,8 @@ class _CalcLoader:
 
     def _display_unit(self, key: str, text: str, expected):
         unit = parse_unit(text, self.where(key))
-        if unit.dimensionality != expected and not (expected is None and unit.dimensionality == DIMENSIONLESS):
+        if not _same_dimension(unit.dimensionality, expected) and not (
+                expected is None and unit.dimensionality == DIMENSIONLESS):
             raise InputError(f"unit '{text}' is {describe(unit.dimensionality)}, but the value is "
                              f"{describe(expected)}", file=str(self.path),
                              line=self.where(key).line, key=key,
@@ -822,6 +823,14 @@ def _angle_unit(expr: sp.Expr, angles: dict[str, str]) -> str | None:
         if isinstance(target, sp.Symbol):
             return angles.get(target.name)
     return None
+
+
+def _same_dimension(a, b) -> bool:
+    """Dimensions equal by their exponents as numbers (an inferred exponent may be a sympy
+    number, pint's a float: -1 and -1.0 are the same dimension)."""
+    if a is None or b is None:
+        return a is b
+    return {k: float(v) for k, v in a.items()} == {k: float(v) for k, v in b.items()}
 
 
 def _force_unit(dim) -> str:
