@@ -21,7 +21,7 @@ from .isolation import stage
 from .mechanics import frequency, linearise as lin, simulate
 from .mechanics.codegen import NumericSystem, numeric
 from .mechanics.energy import audit
-from .mechanics.equilibrium import find_equilibrium
+from .mechanics.equilibrium import at_start, find_equilibrium
 from .mechanics.lagrange import derive
 from .software import versions
 from .verification.checks import judge_criteria, run_crosschecks
@@ -142,8 +142,9 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         checks.append(m.Check("equilibrium", "static equilibrium", False, exc.message))
         return
     names = spec.coordinate_names
+    about = at_start(derivation)        # steps and signs switching at t = 0 taken at t = 0⁺
     try:
-        linear = lin.linearise(derivation, ctx.params, point.q, point.lambdas, point.qd, point.time)
+        linear = lin.linearise(about, ctx.params, point.q, point.lambdas, point.qd, point.time)
         stability = lin.stability(linear)
         modes = lin.modes(linear, names) if spec.analysis.modes else ()
     except (AnalysisError, np.linalg.LinAlgError) as exc:
@@ -162,6 +163,7 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
         expected_unstable=expect,
         multiplier_units={c.name: c.unit for c in spec.constraints})
     ctx.equilibrium = {n: float(v) for n, v in zip(names, point.q)}
+    ctx.equilibrium_kind = point.kind
     checks.append(m.Check("equilibrium", "static equilibrium" if point.kind != "steady motion"
                           else "steady motion (relative equilibrium)", True,
                           f"found ({point.kind}, t = {point.time:g} s), residual {point.residual:.2e}; "
@@ -180,22 +182,29 @@ def _equilibrium_and_modes(spec, derivation, system, q0, ctx, report, checks) ->
 
 
 def _stability_check(spec, stability) -> m.Check:
-    """Passes when the equilibrium is as stable as the calc expects ([analysis] expect_unstable)."""
+    """Passes when the equilibrium is as stable as the calc expects ([analysis] expect_unstable).
+
+    A failure names where to act: the expect_unstable line when the file has one, else
+    the [analysis] table to add (or, when it exists without the key, the key to add there)."""
     expect = spec.analysis.expect_unstable
-    where = f"{spec.path}:{spec.line('analysis') or spec.line('energy')}: analysis.expect_unstable"
     if stability.stable and not expect:
         return m.Check("stability", "stability of the equilibrium", True, stability.verdict)
     if not stability.stable and expect:
         return m.Check("stability", "stability of the equilibrium", True,
                        f"{stability.verdict} (expected: [analysis] expect_unstable = true)")
     if expect:
+        where = f"{spec.path}:{spec.line('analysis.expect_unstable')}: analysis.expect_unstable"
         return m.Check("stability", "stability of the equilibrium", False,
                        f"{where}: the calc expects an unstable equilibrium but found {stability.verdict}. "
                        "Fix: check the model, or remove expect_unstable from [analysis]")
+    if spec.line("analysis") is not None:
+        where, add = (f"{spec.path}:{spec.line('analysis')}: analysis",
+                      "add expect_unstable = true under [analysis]")
+    else:
+        where, add = (f"{spec.path}: analysis", "add an [analysis] table with expect_unstable = true")
     return m.Check("stability", "stability of the equilibrium", False,
                    f"{where}: {stability.verdict}. Fix: change the design so that it is stable, or, "
-                   "when the calc is about an unstable state (e.g. before a control acts), set "
-                   "[analysis] expect_unstable = true")
+                   f"when the calc is about an unstable state (e.g. before a control acts), {add}")
 
 
 def _frequency_response(spec, ctx: QueryContext, report) -> None:
@@ -360,11 +369,12 @@ def _sampling_note(spec, ctx, series, grid) -> str:
         return ""
     wanted = max(int(np.ceil(simulate.POINTS_PER_PERIOD * grid.fastest_hz * th.duration)) + 1,
                  int(np.ceil((th.points - 1) * np.sqrt(max(worst, 1e-300) / SAMPLING_DEVIATION))) + 1)
+    departs = (f"; between samples the plotted record departs from the solution by up to "
+               f"{100 * worst:.3g} % of the range of {where}" if where else "")
     return (f"coarse sampling: {th.points} samples (every {dt:.3g} s) give {per_period:.3g} per period "
-            f"of the fastest frequency seen, {grid.fastest_hz:.4g} Hz ({grid.basis}); between samples "
-            f"the plotted record departs from the solution by up to {100 * worst:.3g} % of the range "
-            f"of {where}. Peaks, max, min, criteria and the integrator comparison are taken from the "
-            f"dense solution; set [time_history] points = {wanted} or more for plots that show the motion")
+            f"of the fastest frequency seen, {grid.fastest_hz:.4g} Hz ({grid.basis}){departs}. Peaks, "
+            f"max, min, criteria and the integrator comparison are taken from the dense solution; "
+            f"set [time_history] points = {wanted} or more for plots that show the motion")
 
 
 def _fine_values(spec, ctx, fine) -> list[np.ndarray]:

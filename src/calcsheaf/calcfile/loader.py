@@ -17,7 +17,7 @@ import sympy as sp
 from .. import identifiers
 from ..errors import CalcsheafError, InputError, ProblemList
 from ..model import Assumption, Reference
-from . import spec as S
+from . import rates, spec as S
 from .expressions import (RESERVED_NAMES, Scope, Where, check_with_values, parse_expression,
                           query_name, velocity)
 from .names import display_forms
@@ -101,6 +101,9 @@ class _CalcLoader:
         self.values: dict[str, float] = {}     # parameter values, SI
         # [[result]] names whose value is a frequency in Hz, for default units of later uses
         self.hertz: set[str] = set()
+        # parameters and results that are angular rates or cyclic frequencies (see rates)
+        self.rate_kinds: dict[str, str] = {}
+        self.angle_units: dict[str, str] = {}  # coordinates given in an angle unit: name -> unit
 
     # ---- reporting ---------------------------------------------------------
     def where(self, key: str) -> Where:
@@ -405,6 +408,8 @@ class _CalcLoader:
                 continue
             dim = unit.dimensionality
             self.dims[name] = dim
+            if dim == DIMENSIONLESS and "radian" in str(ureg.get_root_units(unit)[1]):
+                self.angle_units[name] = row["unit"]
             self.dims[f"dot({name})"] = dim / ureg.second.dimensionality
             self.dims[f"ddot({name})"] = dim / ureg.second.dimensionality ** 2
             out.append(S.Coordinate(name=name, unit=row["unit"], si_unit=si_unit_text(dim),
@@ -442,6 +447,8 @@ class _CalcLoader:
                 continue
             self.dims[name] = quantity.dimensionality
             self.values[name] = to_si(quantity)
+            if rates.unit_kind(quantity.units):
+                self.rate_kinds[name] = rates.unit_kind(quantity.units)
             out.append(S.Parameter(name=name, given=str(row["value"]), value=to_si(quantity),
                                    unit=si_unit_of(quantity),
                                    dimension=quantity.dimensionality, source=source,
@@ -547,7 +554,8 @@ class _CalcLoader:
 
     def _display_unit(self, key: str, text: str, expected):
         unit = parse_unit(text, self.where(key))
-        if unit.dimensionality != expected and not (expected is None and unit.dimensionality == DIMENSIONLESS):
+        if not _same_dimension(unit.dimensionality, expected) and not (
+                expected is None and unit.dimensionality == DIMENSIONLESS):
             raise InputError(f"unit '{text}' is {describe(unit.dimensionality)}, but the value is "
                              f"{describe(expected)}", file=str(self.path),
                              line=self.where(key).line, key=key,
@@ -682,7 +690,7 @@ class _CalcLoader:
         unit_text = self.string(f"{key}.unit", row.get("unit"), None)
         if unit_text is None:
             unit_text = _frequency_unit(expr, self.hertz) if dim == ureg.hertz.dimensionality else None
-            unit_text = unit_text or si_unit_text(dim)
+            unit_text = unit_text or _angle_unit(expr, self.angle_units) or si_unit_text(dim)
         unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text,
                                                        DIMENSIONLESS if dim is None else dim))
         if unit is None:
@@ -690,8 +698,19 @@ class _CalcLoader:
         self.dims[name] = DIMENSIONLESS if dim is None else dim
         if unit_text == "Hz":
             self.hertz.add(name)
+        self._rates(f"{key}.expr", expr, unit, unit_text)
+        kind = rates.unit_kind(unit) or rates.kind_of(expr, self.rate_kinds)
+        if dim == ureg.hertz.dimensionality and kind in (rates.ANGULAR, rates.CYCLIC):
+            self.rate_kinds[name] = kind      # only values of 1/s carry a kind onwards
         return S.NamedExpr(name=name, expr=expr, text=str(row["expr"]), unit=unit_text,
                            factor=si_factor(unit), label=self.label(f"{key}.label", row.get("label")))
+
+    def _rates(self, key: str, expr: sp.Expr, unit, unit_text: str) -> None:
+        """A problem when `expr` shown in `unit` mixes angular rates and cyclic frequencies
+        without an explicit 2*pi (see rates)."""
+        mixed = rates.mixing(expr, unit, unit_text, self.rate_kinds)
+        if mixed:
+            self.problem(key, *mixed)
 
     def outputs(self, params, coords, constraints, names):
         out = []
@@ -754,6 +773,12 @@ class _CalcLoader:
             unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text, dim))
             if unit is None:
                 continue
+            mixed = rates.compared(demand, capacity, self.rate_kinds)
+            if mixed:
+                self.problem(f"{key}.capacity", *mixed)
+            else:
+                self._rates(f"{key}.demand", demand, unit, unit_text)
+                self._rates(f"{key}.capacity", capacity, unit, unit_text)
             out.append(S.Criterion(name=self.string(f"{key}.name", row.get("name"), "?"),
                                    demand=demand, demand_text=str(row["demand"]), capacity=capacity,
                                    capacity_text=str(row["capacity"]), unit=unit_text,
@@ -784,6 +809,28 @@ class _CalcLoader:
 
 
 _HERTZ_QUERIES = frozenset({"natural_frequency", "damped_frequency", "frf_peak_frequency"})
+
+
+_POSITION_QUERIES = frozenset({"equilibrium", "initial", "final", "at", "max", "min", "peak",
+                               "mean", "rms"})
+
+
+def _angle_unit(expr: sp.Expr, angles: dict[str, str]) -> str | None:
+    """Default unit of a query of an angle coordinate (equilibrium(theta), max(theta), ...):
+    the coordinate's own unit (rad, deg), where the dimension alone would give "1"."""
+    if isinstance(expr, sp.Function) and query_name(expr.func) in _POSITION_QUERIES:
+        target = expr.args[0]
+        if isinstance(target, sp.Symbol):
+            return angles.get(target.name)
+    return None
+
+
+def _same_dimension(a, b) -> bool:
+    """Dimensions equal by their exponents as numbers (an inferred exponent may be a sympy
+    number, pint's a float: -1 and -1.0 are the same dimension)."""
+    if a is None or b is None:
+        return a is b
+    return {k: float(v) for k, v in a.items()} == {k: float(v) for k, v in b.items()}
 
 
 def _force_unit(dim) -> str:

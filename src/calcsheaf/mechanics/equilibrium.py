@@ -16,15 +16,20 @@ Three kinds, chosen from the equations, each saying which time it is taken at
   steady motion (base motion Y sin Ωt, a harmonic or step load).  Static
   equilibrium then sets every velocity to zero, prescribed ones included:
   the kinetic energy and the dissipation function give no force at rest, and
-  the potential energy and the applied forces are taken as they stand at t0,
-  −∂V/∂q(q, t0) + Q(q, 0, t0) + Gᵀλ = 0 with g(q, t0) = 0.
+  the potential energy and the applied forces are taken as they act just
+  after t0 (t = 0⁺), −∂V/∂q(q, 0⁺) + Q(q, 0, 0⁺) + Gᵀλ = 0 with g(q, t0) = 0:
+  a step(a) or sign(a) whose argument a(q, t) is zero at t0 takes its right
+  limit, the sign of the first non-zero t-derivative of a at t0 (so a load
+  switched on with step(t) acts in full, not with step(0) = ½).  The
+  linearisation about every kind of equilibrium uses the same right limits
+  (`at_start`), so a stiffness switched on with step(t) counts in full.
 
 The search starts from the calc's initial state (hybr, then lm).
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Callable
 
 import numpy as np
@@ -43,6 +48,7 @@ STATIC, STEADY, FROZEN = "static", "steady motion", "static, time frozen"
 PERSISTENCE_TIMES = (0.0123, 0.1789, 0.7071, 2.2361, 7.3891)
 SOLVE_TOL = 1e-7           # accepted residual, relative to the force scale
 PERSIST_TOL = 1e-7         # accepted |M q̈| along a steady motion, relative to the force scale
+RIGHT_LIMIT_ORDERS = 4     # t-derivatives of a switch argument tried for its sign just after t0
 
 
 @dataclass(frozen=True)
@@ -64,7 +70,7 @@ def find_equilibrium(system: NumericSystem, q0: np.ndarray) -> EquilibriumPoint:
     if not _depends_on_time(d):
         q, lam, err, _ = _solve(_full_residual(system, lambda q: np.zeros(system.n)), q0, system.m)
         return EquilibriumPoint(q=q, qd=np.zeros(system.n), lambdas=lam, residual=err,
-                                note="every velocity zero; nothing depends on time")
+                                note=_static_note(d))
     velocity = lambda q: prescribed_velocity(system, q)
     try:
         q, lam, err, scale = _solve(_full_residual(system, velocity), q0, system.m)
@@ -85,12 +91,71 @@ def find_equilibrium(system: NumericSystem, q0: np.ndarray) -> EquilibriumPoint:
     dropped = prescribed_velocity(system, q)
     dropped_text = (f" ({_listed(system, dropped)} at t = {T0:g} s taken as zero)"
                     if np.any(np.abs(dropped) > 0) else "")
+    switched = _switched_at_start(d, system.params)
+    switched_text = (f"; {', '.join(switched)} switching at t = {T0:g} s taken as just after the "
+                     "switch (right limit, e.g. step(0) = 1 for a load switched on at t = 0)"
+                     if switched else "")
     return EquilibriumPoint(
         q=q, qd=np.zeros(system.n), lambdas=lam, residual=err, kind=FROZEN,
         note=(f"the calc is driven and has no steady motion, so the static equilibrium is "
-              f"taken with the time frozen at t = {T0:g} s and every velocity zero, prescribed "
-              f"ones included{dropped_text}: no inertia or damper force; the potential energy "
-              f"and the applied forces as they stand at t = {T0:g} s"))
+              f"taken with the time frozen just after t = {T0:g} s (t = 0⁺) and every velocity "
+              f"zero, prescribed ones included{dropped_text}: no inertia or damper force; the "
+              f"potential energy and the applied forces as they act at t = 0⁺{switched_text}"))
+
+
+def _static_note(d) -> str:
+    """The note of a static equilibrium whose equations of motion do not depend on time."""
+    timed = [name for name, e in (("T", d.T), ("V", d.V), ("R", d.R)) if e.has(TIME)]
+    timed += ["the applied forces"] if any(e.has(TIME) for e in d.Q) else []
+    if not timed:
+        return "every velocity zero; nothing depends on time"
+    return (f"every velocity zero; time enters {', '.join(timed)}, but not the equations of "
+            "motion between switching instants (e.g. a step in a term linear in a velocity "
+            "gives only an impulse at the switch), so the rest state does not depend on time")
+
+
+def _switch_atoms(expr: sp.Expr) -> set:
+    """The step (Heaviside) and sign applications of `expr` whose argument depends on time."""
+    return {a for a in expr.atoms(sp.Heaviside, sp.sign) if a.args[0].has(TIME)}
+
+
+def right_limit(expr: sp.Expr, t0: float = T0) -> sp.Expr:
+    """`expr` with every time-dependent step(a) and sign(a) replaced by its limit as t → t0⁺.
+
+    At a state q the limit is step/sign of a(q, t0) when that is non-zero, else of the
+    first non-zero ∂ᵏa/∂tᵏ(q, t0) (k ≤ RIGHT_LIMIT_ORDERS); when all vanish, the value
+    at a = 0 (step(0) = ½, sign(0) = 0) is kept.  Other terms are unchanged.
+    """
+    replacements = {}
+    for atom in _switch_atoms(expr):
+        func, a = atom.func, atom.args[0]
+        orders = [a]
+        for _ in range(RIGHT_LIMIT_ORDERS):
+            orders.append(diff_ae(orders[-1], TIME))
+        at = [o.xreplace({TIME: sp.Float(t0)}) for o in orders]
+        pieces = [(func(v), sp.Ne(v, 0)) for v in at]
+        replacements[atom] = sp.Piecewise(*pieces, (func(sp.Integer(0)), True))
+    return expr.xreplace(replacements) if replacements else expr
+
+
+def at_start(derivation):
+    """The derivation with M, f and γ taken just after t0 (`right_limit`), for the
+    linearisation about the equilibrium (unchanged when nothing switches at t0)."""
+    d = derivation
+    return replace(d, M=d.M.applyfunc(right_limit), f=d.f.applyfunc(right_limit),
+                   gamma=d.gamma.applyfunc(right_limit))
+
+
+def _switched_at_start(d, params: dict[str, float]) -> list[str]:
+    """'step(t)' for each time-dependent switch of V or Q whose argument is zero at t0
+    (with the parameters' values, for every q)."""
+    out = []
+    for atom in sorted(_switch_atoms(numeric(d.V, params)) | set().union(
+            *(_switch_atoms(numeric(e, params)) for e in d.Q)), key=sp.default_sort_key):
+        if atom.args[0].xreplace({TIME: sp.Float(T0)}).is_zero:
+            name = "step" if atom.func is sp.Heaviside else "sign"
+            out.append(f"{name}({sp.sstr(atom.args[0])})")
+    return out
 
 
 def _listed(system: NumericSystem, qd: np.ndarray) -> str:
@@ -150,11 +215,11 @@ def _full_residual(system: NumericSystem, velocity: Callable) -> Callable:
 
 
 def _frozen_residual(system: NumericSystem) -> Callable:
-    """x = [q, λ] -> [Q(q, 0, t0) − ∂V/∂q(q, t0) + Gᵀλ, g(q, t0)]: the loads at rest."""
+    """x = [q, λ] -> [Q(q, 0, 0⁺) − ∂V/∂q(q, 0⁺) + Gᵀλ, g(q, t0)]: the loads at rest just after t0."""
     d, n = system.derivation, system.n
     at_rest = {v: sp.Integer(0) for v in d.qd}
-    static = [numeric(d.Q[i].xreplace(at_rest) - diff_ae(d.V, d.q[i]).xreplace(at_rest),
-                      system.params) for i in range(n)]
+    static = [right_limit(numeric(d.Q[i].xreplace(at_rest) - diff_ae(d.V, d.q[i]).xreplace(at_rest),
+                                  system.params)) for i in range(n)]
     fn = sp.lambdify([TIME, *d.q], static, modules="math", cse=True)
     zero = np.zeros(n)
 

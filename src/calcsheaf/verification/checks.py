@@ -115,7 +115,15 @@ def _detail(error: float, tolerance: float, limits, dependence: str) -> str:
 
 
 # ---- independence ------------------------------------------------------------------
-_MODE_QUERIES = frozenset({"natural_frequency", "damping_ratio", "damped_frequency"})
+# One family per mode: every query of the same mode's root (undamped_frequency(i) taken
+# with mode i); frf_peak_frequency, a resonance, belongs to every mode's family.
+_MODE_QUERIES = frozenset({"natural_frequency", "damping_ratio", "damped_frequency",
+                           "undamped_frequency"})
+_ANY_MODE = frozenset({"frf_peak_frequency"})
+# at(q, t) with t at most this fraction of the shortest natural period or of the sample
+# step is the initial state: a harmonic motion has moved by at most (2π·0.01)²/2 ≈ 0.2 %
+# of its amplitude.
+EARLY_FRACTION = 0.01
 _EXTREMES = frozenset({"max", "min", "peak"})
 
 
@@ -124,24 +132,28 @@ def independence(ctx: QueryContext, crosscheck, compared: sp.Expr, tolerance: fl
     """Why comparing `compared` with the case cannot fail on its own; "" when it can.
 
     Not independent: (1) a handbook input is computed from the same analysis result as
-    the compared value (the same query; for modes, any query of the same mode), so the
-    calc's result is fed back into the closed form; (2) the compared value is only the
-    initial state: initial(), at(..., 0), or max/min/peak of a state expression whose
-    extreme is its value at t = 0.  [[result]] names are followed to their expressions.
+    the compared value (the same query; for modes, any query of the same mode's family:
+    natural, damped and undamped frequency, damping ratio, and frf_peak_frequency for
+    every mode), so the calc's result is fed back into the closed form; (2) the compared
+    value is only the initial state: initial(), at(..., t) with t at most EARLY_FRACTION
+    of the shortest natural period or of the sample step (t = 0 included), or
+    max/min/peak of a state expression whose extreme is its value at t = 0.  [[result]] names are followed to their expressions.
     A comparison of parameters only (a design value against the case's optimum, say)
     can fail on its own and is not flagged.
     """
     compared = _expanded(ctx.spec, compared)
     calls = _query_calls(compared)
+    compared_keys = {_quantity_key(c) for c in calls}
     for name, expr in crosscheck.inputs:
-        shared = sorted({_quantity_key(c) for c in _query_calls(_expanded(ctx.spec, expr))}
-                        & {_quantity_key(c) for c in calls})
+        shared = _shared({_quantity_key(c) for c in _query_calls(_expanded(ctx.spec, expr))},
+                         compared_keys)
         if shared:
             return (f"handbook input {name} is computed from {_describe(shared[0])}, the calc "
                     "result being compared; give the case the calc's parameters instead")
     if calls and all(_initial_state(ctx, c, tolerance, key) for c in calls):
-        return ("the compared value is the initial state given in the calc, not a computed "
-                "result; compare a query of the motion or the modes")
+        return ("the compared value is the initial state given in the calc (or the state "
+                f"at most {EARLY_FRACTION:.0%} of the shortest natural period or sample step "
+                "after it), not a computed result; compare a query of the motion or the modes")
     return ""
 
 
@@ -161,16 +173,32 @@ def _query_calls(expr: sp.Expr) -> set:
 
 
 def _quantity_key(call) -> tuple:
-    """What a query measures: one mode root for the mode queries, else the call itself."""
+    """What a query measures: one mode root for the mode queries, ("mode", "*") for a
+    resonance frequency (any mode), else the call itself."""
     name = query_name(call.func)
     if name in _MODE_QUERIES:
         return ("mode", sp.sstr(call.args[0]))
+    if name in _ANY_MODE:
+        return ("mode", "*")
     return (name, *(sp.sstr(a) for a in call.args))
 
 
+def _shared(a: set, b: set) -> list:
+    """The quantities of `a` also measured in `b`, sorted; ("mode", "*") meets every mode."""
+    wild = ("mode", "*")
+    found = a & b
+    if wild in a:
+        found |= {k for k in b if k[0] == "mode"}
+    if wild in b:
+        found |= {k for k in a if k[0] == "mode"}
+    return sorted(found)
+
+
 def _describe(quantity: tuple) -> str:
+    if quantity == ("mode", "*"):
+        return "a resonance frequency (the frequency family of every mode)"
     if quantity[0] == "mode":
-        return f"mode {quantity[1]}"
+        return f"mode {quantity[1]} (its frequency family)"
     return f"{quantity[0]}({', '.join(quantity[1:])})"
 
 
@@ -186,7 +214,7 @@ def _initial_state(ctx: QueryContext, call, tolerance: float, key: str) -> bool:
     if name == "initial":
         return True
     if name == "at":
-        return float(numeric(call.args[1], ctx.params)) == 0.0
+        return float(numeric(call.args[1], ctx.params)) <= EARLY_FRACTION * _time_scale(ctx)
     try:
         value = ctx.evaluate(call, key)
         start = float(ctx.series(series)[0])
@@ -194,6 +222,17 @@ def _initial_state(ctx: QueryContext, call, tolerance: float, key: str) -> bool:
         return False
     start = abs(start) if name == "peak" else start
     return abs(value - start) <= tolerance * max(abs(value), abs(start), 1e-300)
+
+
+def _time_scale(ctx: QueryContext) -> float:
+    """s: the shortest natural period of the modes, or the sample step when shorter or
+    there are no modes; 0 when neither is known (then only t = 0 is the start)."""
+    scales = [1.0 / md.natural_frequency_hz for md in ctx.modes
+              if math.isfinite(md.natural_frequency_hz) and md.natural_frequency_hz > 0]
+    th = ctx.spec.time_history
+    if th is not None:
+        scales.append(th.duration / (th.points - 1))
+    return min(scales, default=0.0)
 
 
 def _state_only(spec, expr: sp.Expr) -> bool:

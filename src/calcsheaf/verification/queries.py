@@ -56,6 +56,7 @@ class QueryContext:
     params: dict[str, float]
     history: History | None = None
     equilibrium: dict[str, float] | None = None
+    equilibrium_kind: str = ""               # mechanics.equilibrium STATIC, STEADY or FROZEN
     modes: tuple = ()
     linear: Any = None
     force: np.ndarray | None = None          # FRF generalized-force amplitudes
@@ -252,30 +253,59 @@ class QueryContext:
 
     # ---- oscillation measures --------------------------------------------------
     def _oscillation(self, name: str, coordinate: str, history: History) -> float:
-        """period or log_decrement of a coordinate; crossings bracketed on the fine grid, refined on the dense solution."""
-        names = self.spec.coordinate_names
-        i = names.index(coordinate)
-        n = len(names)
+        """period (s) or log_decrement (1) of a coordinate, measured about its level (`_level`).
+
+        period: mean spacing of the upward crossings of the level; log_decrement:
+        ln(a_first / a_last) / (count − 1) over the maxima above the level (q̇ = 0).
+        Crossings are bracketed on the fine grid and refined on the dense solution.
+        """
+        i = self.spec.coordinate_names.index(coordinate)
         fine = self.fine()
-        centre = self.equilibrium[coordinate] if self.equilibrium else float(np.mean(history.Q[i]))
+        centre, basis = self._level(coordinate, i, history, fine)
         if name == "period":
             times = self._crossings(lambda t: history.dense(t)[i] - centre, fine.Q[i] - centre, fine.t,
                                     history.dense is not None)
             if len(times) < 2:
-                raise self._fail(f"period({coordinate}) needs at least two upward crossings of its "
-                                 "mean position in the time history", "lengthen [time_history] duration")
+                raise self._fail(f"period({coordinate}) needs at least two upward crossings of "
+                                 f"{basis} in the time history", "lengthen [time_history] duration")
             return float((times[-1] - times[0]) / (len(times) - 1))
-        peaks_t = self._crossings(lambda t: -history.dense(t)[n + i], -fine.QD[i], fine.t,
-                                  history.dense is not None)
-        if history.dense is not None:
-            peaks = [float(history.dense(t)[i] - centre) for t in peaks_t]
-        else:
-            peaks = [float(np.interp(t, fine.t, fine.Q[i]) - centre) for t in peaks_t]
+        peaks = [x - centre for _, x in self._turning_points(i, history, fine, maxima=True)]
         peaks = [p for p in peaks if p > 0]
         if len(peaks) < 2:
-            raise self._fail(f"log_decrement({coordinate}) needs at least two positive peaks",
+            raise self._fail(f"log_decrement({coordinate}) needs at least two peaks above {basis}",
                              "lengthen [time_history] duration or check the damping")
         return float(np.log(peaks[0] / peaks[-1]) / (len(peaks) - 1))
+
+    def _level(self, coordinate: str, i: int, history: History, fine: History) -> tuple[float, str]:
+        """(SI level, description) about which the coordinate oscillates.
+
+        The equilibrium when it does not depend on time (static or steady motion).  When
+        the loads vary in time (a time-frozen equilibrium, e.g. a load switched on at
+        t1 > 0) or no equilibrium was computed, the level of the last oscillation: from
+        its last three turning points x1, x2, x3 (maximum, minimum, maximum or the
+        reverse), c = (x1 x3 − x2²)/(x1 + x3 − 2 x2), exact for a linear viscously damped
+        oscillation about c (x − c = A e^(−ζωt) cos(ω_d t − φ) makes x1 − c, x2 − c, x3 − c
+        geometric); the mean of the record when there are fewer than three.
+        """
+        if self.equilibrium is not None and self.equilibrium_kind in ("static", "steady motion"):
+            return self.equilibrium[coordinate], "its equilibrium"
+        turns = sorted(self._turning_points(i, history, fine, maxima=True)
+                       + self._turning_points(i, history, fine, maxima=False))
+        if len(turns) >= 3:
+            x1, x2, x3 = (x for _, x in turns[-3:])
+            denominator = x1 + x3 - 2 * x2
+            if denominator != 0:
+                return (x1 * x3 - x2 * x2) / denominator, "the level of its last oscillation"
+        return float(np.mean(history.Q[i])), "its mean position"
+
+    def _turning_points(self, i: int, history: History, fine: History, maxima: bool) -> list:
+        """[(t, q_i(t))] where q̇_i crosses zero downwards (maxima) or upwards (minima)."""
+        n, dense = len(self.spec.coordinate_names), history.dense is not None
+        sign = -1.0 if maxima else 1.0
+        times = self._crossings(lambda t: sign * history.dense(t)[n + i], sign * fine.QD[i], fine.t, dense)
+        if dense:
+            return [(t, float(history.dense(t)[i])) for t in times]
+        return [(t, float(np.interp(t, fine.t, fine.Q[i]))) for t in times]
 
     @staticmethod
     def _crossings(fn, sampled: np.ndarray, t: np.ndarray, dense: bool) -> list[float]:
