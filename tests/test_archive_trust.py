@@ -361,6 +361,8 @@ def test_issue_runs_the_calc_under_the_build_limits(project, monkeypatch):
     from calcsheaf import isolation
     from calcsheaf.commands.issue import render_frozen
     from calcsheaf.errors import AnalysisError
+    calc = project / "calcs" / "c1.toml"      # a valid calc: only the limit can stop it
+    calc.write_text(calc.read_text() + '\n[initial]\nz = "1 mm"\n"dot(z)" = "0 m/s"\n')
     _sign_both(project)
     monkeypatch.setattr(isolation, "TIME_LIMIT_S", 0.0)
     with pytest.raises(AnalysisError, match="exceeded its time limit of 0 s"):

@@ -8,6 +8,7 @@ import subprocess
 
 import pytest
 
+from calcsheaf import cache as cache_mod
 from calcsheaf.cli import main
 from test_build import make_project, tiny
 
@@ -68,10 +69,12 @@ def test_issued_pdf_site_and_revisions_tell_one_story(tmp_path, people_env, caps
     main(["keygen", "--name", "Ada Preparer", "--id", "ada", "--project", str(project)])
     main(["keygen", "--name", "Ben Checker", "--id", "ben", "--project", str(project)])
     assert main(["build", str(project)]) == 0
-    planted = sorted((project / ".calcsheaf-cache" / "equations").rglob("*.svg"))
+    planted = sorted((project / cache_mod.FOLDER / "equations").glob(f"*{cache_mod.SUFFIX}"))
     assert planted, "the build caches equation images"
-    for svg in planted:
-        svg.write_text('<svg xmlns="http://www.w3.org/2000/svg"><text>PLANTED</text></svg>')
+    store = cache_mod.Cache(project)        # authentic entries (this user's key), wrong images
+    for entry in planted:
+        store.put("equations", entry.stem, {},
+                  {"svg": b'<svg xmlns="http://www.w3.org/2000/svg"><text>PLANTED</text></svg>'})
 
     def sign_and_issue(rev, *extra):
         assert main(["sign", str(project), "C-1", "--as", "preparer", "--person", "ada"]) == 0

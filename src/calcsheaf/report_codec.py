@@ -24,7 +24,7 @@ from . import errors, model as m
 
 ROWS = {cls.__name__: cls for cls in (
     m.Assumption, m.Reference, m.InputRow, m.CoordinateRow, m.Check, m.Equilibrium, m.Mode,
-    m.OutputSummary, m.ResultValue, m.CriterionRow, m.CrosscheckRow)}
+    m.OutputSummary, m.ResultValue, m.CriterionRow, m.CrosscheckRow, m.CrosscheckInput)}
 KEPT = ("number", "title", "input_hash", "revision", "status", "purpose", "assumptions",
         "references", "inputs", "coordinates", "equilibrium", "modes", "outputs", "results",
         "criteria", "crosschecks", "checks", "cautions", "hazards", "software")
