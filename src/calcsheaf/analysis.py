@@ -255,9 +255,10 @@ def _response_row(item, complex_si, amplitude_at, freqs, amplitude, phase, units
 def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> None:
     th = spec.time_history
     powers = simulate.power_functions(derivation, ctx.params)
+    plan = simulate.stick_slip(derivation, ctx.params)
     first, second, grid = simulate.integrate(system, th, np.concatenate([q0, qd0]), powers,
-                                             linear_hz=_highest_linear_hz(ctx),
-                                             plan=simulate.stick_slip(derivation, ctx.params))
+                                             linear_hz=_highest_linear_hz(ctx), plan=plan,
+                                             switches=simulate.find_switches(derivation, ctx.params, th, plan))
     for run, role in ((first, "primary"), (second, "independent")):
         s = run.solver
         detail = f"status {s.status}: {s.message}; {s.nfev} evaluations"
