@@ -361,10 +361,13 @@ def _sampling_note(spec, ctx, series, grid) -> str:
         return ""
     wanted = max(int(np.ceil(simulate.POINTS_PER_PERIOD * grid.fastest_hz * th.duration)) + 1,
                  int(np.ceil((th.points - 1) * np.sqrt(max(worst, 1e-300) / SAMPLING_DEVIATION))) + 1)
+    departs = (f"between samples the plotted record departs from the solution by up to {100 * worst:.3g} % "
+               f"of the range of {where}" if where else
+               f"the samples, joined by straight lines, follow the dense solution within "
+               f"{100 * SAMPLING_DEVIATION:.3g} % of every range")
     return (f"coarse sampling: {th.points} samples (every {dt:.3g} s) give {per_period:.3g} per period "
-            f"of the fastest frequency seen, {grid.fastest_hz:.4g} Hz ({grid.basis}); between samples "
-            f"the plotted record departs from the solution by up to {100 * worst:.3g} % of the range "
-            f"of {where}. Peaks, max, min, criteria and the integrator comparison are taken from the "
+            f"of the fastest frequency seen, {grid.fastest_hz:.4g} Hz ({grid.basis}); {departs}. "
+            f"Peaks, max, min, criteria and the integrator comparison are taken from the "
             f"dense solution; set [time_history] points = {wanted} or more for plots that show the motion")
 
 
