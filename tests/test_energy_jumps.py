@@ -118,7 +118,7 @@ def test_audit_fails_when_the_motion_misses_the_step(tmp_path):
     d = derive(spec)
     wrong = replace(d, f=d.f.applyfunc(lambda e: e.replace(sp.Heaviside, lambda *a: sp.S.Zero)))
     params = spec.parameter_values
-    first, _ = simulate.integrate(NumericSystem(wrong, params), spec.time_history,
+    first, *_ = simulate.integrate(NumericSystem(wrong, params), spec.time_history,
                                   np.array([X0, 0.0]), simulate.power_functions(d, params))
     t, Y = first.t, first.y
     Q, QD = Y[:1], Y[1:2]
