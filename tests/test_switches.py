@@ -289,3 +289,11 @@ def test_coarse_note_names_no_empty_series(tmp_path):
     note = report.time_history.sampling_note
     assert note.startswith("coarse sampling")
     assert "range of ." not in note and "follow the dense solution within 1 %" in note
+
+
+def test_two_roots_between_scan_points_are_found():
+    """u = (t − 0.30003)(t − 0.30004) dips below zero for 10 µs, inside one scan interval (2 s / 20 000 =
+    100 µs): the plain scan sees no sign change; both roots are the closed-form ones."""
+    u = (TIME - sp.Float(0.30003)) * (TIME - sp.Float(0.30004))
+    assert switches.breakpoints([u], 2.0) == pytest.approx((0.30003, 0.30004), abs=1e-12)
+    assert switches.hidden_roots(TIME - sp.Float(0.5), 2.0) == []

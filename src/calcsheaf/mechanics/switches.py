@@ -28,11 +28,12 @@ from typing import Callable
 import numpy as np
 import sympy as sp
 import scipy.integrate
+from scipy.optimize import brentq, minimize_scalar
 from scipy.integrate import LSODA, OdeSolution, OdeSolver, solve_ivp
 
-from ..calcfile.expressions import TIME
+from ..calcfile.expressions import TIME, symbol
 from .codegen import numeric
-from .energy import switch_times
+from .energy import ROOT_GRID, switch_times
 from .lagrange import Derivation, diff_ae
 
 MIN_STEP_FRACTION = 1e-12     # floor of the step limit, relative to the duration
@@ -45,16 +46,19 @@ def switch_arguments(derivation: Derivation, params: dict[str, float],
     """(time arguments u(t), state arguments a(t, q, q̇)) of the switching functions of the equations.
 
     Searched in L (T and V), R, the generalized forces Q, the equations f and
-    the constraints g, with parameters substituted.  Arguments in `exclude`
-    (the Coulomb slip velocities that mechanics.stickslip handles by events)
-    are left out, as are constants.
+    the constraints g as written, with parameters substituted: not in their
+    overflow-safe forms (codegen.numeric), whose |u| in a smooth function such
+    as log(cosh u) is no switch.  Arguments in `exclude` (the Coulomb slip
+    velocities that mechanics.stickslip handles by events) are left out, as
+    are constants.
     """
     d = derivation
     states = set(d.q) | set(d.qd)
-    skip = {numeric(e, params) for e in exclude}
+    values = {symbol(k): sp.Float(v) for k, v in params.items()}
+    skip = {e.xreplace(values) for e in exclude}
     found: set[sp.Expr] = set()
     for source in (d.L, d.R, *d.Q, *d.f, *d.g):
-        found.update(_arguments(numeric(source, params)))
+        found.update(_arguments(source.xreplace(values)))
     time_args, state_args = [], []
     for a in sorted(found, key=sp.default_sort_key):
         if a in skip or -a in skip or not a.free_symbols:
@@ -89,14 +93,46 @@ def _relationals(cond):
 
 
 def breakpoints(time_args, duration: float) -> tuple[float, ...]:
-    """Every root of the time arguments strictly inside (0, duration), merged within 1e-12·duration, s."""
-    roots = sorted(ts for u in time_args for ts in switch_times(u, duration))
+    """Every root of the time arguments strictly inside (0, duration), merged within 1e-12·duration, s.
+
+    energy.switch_times finds the sign changes between points of its scan;
+    `hidden_roots` adds pairs of roots that fall between two scan points
+    (an argument that dips through zero and back within one scan interval).
+    """
+    roots = sorted(ts for u in time_args for ts in (*switch_times(u, duration), *hidden_roots(u, duration)))
     merged: list[float] = []
     tol = 1e-12 * max(1.0, duration)
     for ts in roots:
         if tol < ts < duration - tol and (not merged or ts - merged[-1] > tol):
             merged.append(ts)
     return tuple(merged)
+
+
+def hidden_roots(u: sp.Expr, duration: float, most: int = 1000) -> list[float]:
+    """Roots of u(t) in pairs between scan points: where |u| has a local minimum on the scan without a
+    sign change, u is minimised on the two neighbouring intervals (bounded Brent) and, if it crosses
+    zero there, both roots are located (Brent).  At most `most` such minima are examined."""
+    grid = np.linspace(0.0, duration, ROOT_GRID)
+    with np.errstate(all="ignore"):
+        values = np.broadcast_to(np.asarray(sp.lambdify([TIME], u, modules="numpy")(grid), dtype=float),
+                                 grid.shape)
+    mag, sgn = np.abs(values), np.sign(values)
+    inner = np.arange(1, len(grid) - 1)
+    dips = inner[(mag[inner] <= mag[inner - 1]) & (mag[inner] <= mag[inner + 1])
+                 & ((mag[inner] < mag[inner - 1]) | (mag[inner] < mag[inner + 1]))
+                 & (sgn[inner - 1] == sgn[inner]) & (sgn[inner] == sgn[inner + 1]) & (sgn[inner] != 0)]
+    scalar = sp.lambdify([TIME], u, modules="math")
+    roots: list[float] = []
+    for i in dips[:most]:
+        side = float(sgn[i])
+        lo, hi = float(grid[i - 1]), float(grid[i + 1])
+        best = minimize_scalar(lambda t: side * scalar(t), bounds=(lo, hi), method="bounded",
+                               options={"xatol": 1e-15 * max(1.0, duration)})
+        if not side * float(scalar(best.x)) < 0:
+            continue
+        xtol = 1e-15 * max(1.0, duration)
+        roots += [float(brentq(scalar, lo, best.x, xtol=xtol)), float(brentq(scalar, best.x, hi, xtol=xtol))]
+    return roots
 
 
 class StepLimit:
