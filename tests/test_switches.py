@@ -296,4 +296,7 @@ def test_two_roots_between_scan_points_are_found():
     100 µs): the plain scan sees no sign change; both roots are the closed-form ones."""
     u = (TIME - sp.Float(0.30003)) * (TIME - sp.Float(0.30004))
     assert switches.breakpoints([u], 2.0) == pytest.approx((0.30003, 0.30004), abs=1e-12)
-    assert switches.hidden_roots(TIME - sp.Float(0.5), 2.0) == []
+    assert switches.hidden_roots(TIME - sp.Float(0.5), 2.0) == pytest.approx([0.5], abs=1e-14)
+    # A root next to a scan point where u is exactly zero (t = 0.5 s is one): the 50 µs pulse ends too.
+    pulse = (TIME - sp.Float(0.5)) * (sp.Float(0.50005) - TIME)
+    assert switches.breakpoints([pulse], 2.0) == pytest.approx((0.5, 0.50005), abs=1e-12)

@@ -96,8 +96,8 @@ def breakpoints(time_args, duration: float) -> tuple[float, ...]:
     """Every root of the time arguments strictly inside (0, duration), merged within 1e-12·duration, s.
 
     energy.switch_times finds the sign changes between points of its scan;
-    `hidden_roots` adds pairs of roots that fall between two scan points
-    (an argument that dips through zero and back within one scan interval).
+    `hidden_roots` adds what that scan can miss: pairs of roots between two
+    scan points, and a root next to a scan point where u is exactly zero.
     """
     roots = sorted(ts for u in time_args for ts in (*switch_times(u, duration), *hidden_roots(u, duration)))
     merged: list[float] = []
@@ -109,10 +109,14 @@ def breakpoints(time_args, duration: float) -> tuple[float, ...]:
 
 
 def hidden_roots(u: sp.Expr, duration: float, most: int = 1000) -> list[float]:
-    """Roots of u(t) in pairs between scan points: where |u| has a local minimum on the scan without a
-    sign change, u is minimised on the two neighbouring intervals (bounded Brent) and, if it crosses
-    zero there, both roots are located (Brent).  At most `most` such minima are examined."""
-    grid = np.linspace(0.0, duration, ROOT_GRID)
+    """Roots of u(t) that a sign-change scan misses, on a second scan offset from energy.switch_times' grid
+    by an irrational fraction of its spacing (so that a round switching time such as 0.5 s, an exact
+    zero there, is not one here).  The sign changes of this scan are located (Brent); and where |u| has
+    a local minimum without a sign change, u is minimised on the two neighbouring intervals (bounded
+    Brent) and, if it crosses zero there, both roots are located.  At most `most` minima are examined."""
+    spacing = duration / (ROOT_GRID - 1)
+    grid = np.concatenate([[0.0], spacing * (np.arange(ROOT_GRID - 1) + 0.5 * (np.sqrt(5.0) - 1.0)),
+                           [duration]])
     with np.errstate(all="ignore"):
         values = np.broadcast_to(np.asarray(sp.lambdify([TIME], u, modules="numpy")(grid), dtype=float),
                                  grid.shape)
@@ -122,7 +126,8 @@ def hidden_roots(u: sp.Expr, duration: float, most: int = 1000) -> list[float]:
                  & ((mag[inner] < mag[inner - 1]) | (mag[inner] < mag[inner + 1]))
                  & (sgn[inner - 1] == sgn[inner]) & (sgn[inner] == sgn[inner + 1]) & (sgn[inner] != 0)]
     scalar = sp.lambdify([TIME], u, modules="math")
-    roots: list[float] = []
+    xtol = 1e-15 * max(1.0, duration)
+    roots = [float(brentq(scalar, grid[i], grid[i + 1], xtol=xtol)) for i in np.nonzero(sgn[:-1] * sgn[1:] < 0)[0]]
     for i in dips[:most]:
         side = float(sgn[i])
         lo, hi = float(grid[i - 1]), float(grid[i + 1])
@@ -130,7 +135,6 @@ def hidden_roots(u: sp.Expr, duration: float, most: int = 1000) -> list[float]:
                                options={"xatol": 1e-15 * max(1.0, duration)})
         if not side * float(scalar(best.x)) < 0:
             continue
-        xtol = 1e-15 * max(1.0, duration)
         roots += [float(brentq(scalar, lo, best.x, xtol=xtol)), float(brentq(scalar, best.x, hi, xtol=xtol))]
     return roots
 
