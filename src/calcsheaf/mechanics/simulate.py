@@ -189,7 +189,8 @@ def _phased_run(method, plan: StickSlip, y0, t_eval, spec: TimeHistorySpec, atol
             y = plan.stick(y, mode, j)
         while True:
             a, b = _segment(edges, t0)
-            rhs = sw.inside(_phase_rhs(plan, mode, energy, counter, budget), a, b, spec.duration, switches.clamps)
+            rhs = sw.inside(_phase_rhs(plan, mode, energy, counter, budget), a, b, spec.duration,
+                            switches.clamps)
             events, outcomes = _phase_events(plan, mode, sw.clamp(a, b, spec.duration) if switches.clamps
                                              else (lambda t: t))
             sol = sw.solve(rhs, (t0, b), y, method, switches.limit, rtol=rtol, atol=atol,
@@ -401,8 +402,8 @@ def _segmented_run(method, counted, counter, y0, t_eval, spec: TimeHistorySpec, 
     y, parts = np.asarray(y0, dtype=float), []
     try:
         for a, b in zip(edges[:-1], edges[1:]):
-            sol = sw.solve(sw.inside(counted, a, b, spec.duration, switches.clamps), (a, b), y, method, switches.limit,
-                           rtol=rtol, atol=atol, dense_output=True)
+            fun = sw.inside(counted, a, b, spec.duration, switches.clamps)
+            sol = sw.solve(fun, (a, b), y, method, switches.limit, rtol=rtol, atol=atol, dense_output=True)
             if not sol.success:
                 solver = SolverRun(method, False, int(sol.status), str(sol.message), counter["nfev"])
                 return Run(solver, t_eval, np.zeros((len(y0), 0)))

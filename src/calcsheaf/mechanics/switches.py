@@ -38,7 +38,7 @@ from .lagrange import Derivation, diff_ae
 
 MIN_STEP_FRACTION = 1e-12     # floor of the step limit, relative to the duration
 SAFETY = 0.5                  # fraction of the distance to a switch one step may cover
-EDGE = 1e-12                  # the right-hand side of a segment is evaluated this far (× max(1, duration)) inside it
+EDGE = 1e-12                  # a segment's equations are read this far inside it, × max(1, duration) s
 
 
 def switch_arguments(derivation: Derivation, params: dict[str, float],
@@ -180,7 +180,8 @@ class Switches:
 
     @property
     def any(self) -> bool:
-        return bool(self.times) or self.limit is not None
+        """True when the runs go segment by segment (also for a switch in time at t = 0 only, read inside)."""
+        return bool(self.times) or self.limit is not None or bool(self.time_arguments)
 
     @property
     def clamps(self) -> bool:
@@ -204,7 +205,7 @@ def find(derivation: Derivation, params: dict[str, float], duration: float, atol
 
 
 def clamp(a: float, b: float, duration: float) -> Callable[[float], float]:
-    """t ↦ t clamped to [a + ε, b − ε], ε = EDGE·max(1, duration): a time strictly inside segment [a, b]."""
+    """t ↦ t clamped to [a + ε, b − ε], ε = EDGE·max(1, duration): a time strictly inside [a, b], s."""
     eps = EDGE * max(1.0, duration)
     lo, hi = a + eps, max(a + eps, b - eps)
     return lambda t: min(max(t, lo), hi)
