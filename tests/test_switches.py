@@ -224,6 +224,7 @@ def test_step_limit_never_reaches_the_switch():
         x, steps = x + h, steps + 1
     assert steps < 40                                   # ≈ log2(0.5 / 1e-9)
     assert limit(0.0, [0.2, 0.0], [0.0, 0.0]) == np.inf  # at rest: no limit
+    assert limit(0.0, [0.7, 1.0], [1.0, 0.0]) == np.inf  # moving away from the switch: no limit
 
 
 def test_stuck_block_breaks_away_at_a_pulse(tmp_path):

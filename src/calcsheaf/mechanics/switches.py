@@ -11,7 +11,8 @@ is zero there, so the error estimate gives no warning).  Two kinds:
   by segment and restart at each, with the right-hand side of a segment
   evaluated inside it (never at the breakpoint itself, where step(0) = 1/2).
 - state switches: an argument a(t, q, q̇).  Each step is limited to
-  h ≤ ½ (|a| + a_tol) / |ȧ| over every argument, with ȧ = ∂a/∂t + ∇a·ẏ and
+  h ≤ ½ (|a| + a_tol) / |ȧ| over every argument moving towards zero
+  (a ȧ < 0), with ȧ = ∂a/∂t + ∇a·ẏ and
   a_tol = |∇a|·atol the size of a that the integrator's own tolerance cannot
   resolve.  To first order a step then moves an argument at most half way to
   zero, so it cannot cross a region where the argument changes sign twice;
@@ -140,7 +141,11 @@ def hidden_roots(u: sp.Expr, duration: float, most: int = 1000) -> list[float]:
 
 
 class StepLimit:
-    """h_max(t, y, ẏ) = max(floor, SAFETY · min over arguments of (|a| + a_tol)/|ȧ|), s; inf without motion."""
+    """h_max(t, y, ẏ) = max(floor, SAFETY · min of (|a| + a_tol)/|ȧ| over the arguments approaching zero), s.
+
+    Only an argument moving towards zero (a ȧ < 0) limits the step: one
+    moving away cannot reach zero to first order.  inf when none approaches.
+    """
 
     def __init__(self, derivation: Derivation, params: dict[str, float], args, atol: np.ndarray,
                  duration: float) -> None:
@@ -160,14 +165,15 @@ class StepLimit:
         n2 = 2 * self.n
         state = np.asarray(y, dtype=float)[:n2]
         with np.errstate(all="ignore"):
-            a = np.abs(np.array(self._values(t, *state), dtype=float))
+            a = np.array(self._values(t, *state), dtype=float)
             g = np.array(self._grads(t, *state), dtype=float).reshape(self.count, n2 + 1)
-        rate = np.abs(g[:, 0] + g[:, 1:] @ np.asarray(ydot, dtype=float)[:n2])
+            rate = g[:, 0] + g[:, 1:] @ np.asarray(ydot, dtype=float)[:n2]
         slack = np.abs(g[:, 1:]) @ self.atol
-        ok = np.isfinite(a) & np.isfinite(rate) & (rate > 0)
-        if not ok.any():
+        approaching = np.isfinite(a) & np.isfinite(rate) & (a * rate < 0)
+        if not approaching.any():
             return np.inf
-        return max(self.floor, SAFETY * float(np.min((a[ok] + slack[ok]) / rate[ok])))
+        distance = (np.abs(a) + slack)[approaching] / np.abs(rate[approaching])
+        return max(self.floor, SAFETY * float(np.min(distance)))
 
 
 @dataclass(frozen=True)
