@@ -264,9 +264,10 @@ def _response_row(item, complex_si, amplitude_at, freqs, amplitude, phase, units
 def _time_history(spec, derivation, system, q0, qd0, ctx, report, checks) -> None:
     th = spec.time_history
     powers = simulate.power_functions(derivation, ctx.params)
+    plan = simulate.stick_slip(derivation, ctx.params)
     first, second, grid = simulate.integrate(system, th, np.concatenate([q0, qd0]), powers,
-                                             linear_hz=_highest_linear_hz(ctx),
-                                             plan=simulate.stick_slip(derivation, ctx.params))
+                                             linear_hz=_highest_linear_hz(ctx), plan=plan,
+                                             switches=simulate.find_switches(derivation, ctx.params, th, plan))
     for run, role in ((first, "primary"), (second, "independent")):
         s = run.solver
         detail = f"status {s.status}: {s.message}; {s.nfev} evaluations"
@@ -369,12 +370,14 @@ def _sampling_note(spec, ctx, series, grid) -> str:
         return ""
     wanted = max(int(np.ceil(simulate.POINTS_PER_PERIOD * grid.fastest_hz * th.duration)) + 1,
                  int(np.ceil((th.points - 1) * np.sqrt(max(worst, 1e-300) / SAMPLING_DEVIATION))) + 1)
-    departs = (f"; between samples the plotted record departs from the solution by up to "
-               f"{100 * worst:.3g} % of the range of {where}" if where else "")
+    departs = (f"between samples the plotted record departs from the solution by up to {100 * worst:.3g} % "
+               f"of the range of {where}" if where else
+               f"the samples, joined by straight lines, follow the dense solution within "
+               f"{100 * SAMPLING_DEVIATION:.3g} % of every range")
     return (f"coarse sampling: {th.points} samples (every {dt:.3g} s) give {per_period:.3g} per period "
-            f"of the fastest frequency seen, {grid.fastest_hz:.4g} Hz ({grid.basis}){departs}. Peaks, "
-            f"max, min, criteria and the integrator comparison are taken from the dense solution; "
-            f"set [time_history] points = {wanted} or more for plots that show the motion")
+            f"of the fastest frequency seen, {grid.fastest_hz:.4g} Hz ({grid.basis}); {departs}. "
+            f"Peaks, max, min, criteria and the integrator comparison are taken from the "
+            f"dense solution; set [time_history] points = {wanted} or more for plots that show the motion")
 
 
 def _fine_values(spec, ctx, fine) -> list[np.ndarray]:

@@ -13,6 +13,8 @@ the primary with points inside, and POINTS_PER_PERIOD per period of the
 fastest frequency seen) and compared there with the primary's dense output.
 With Coulomb terms sign(s) both runs go through sliding and stuck phases
 (mechanics.stickslip), one solve_ivp per phase, ended by located events.
+With switches (mechanics.switches) both runs restart at every explicit
+switching time and limit each step by the distance to the state switches.
 """
 
 from __future__ import annotations
@@ -29,6 +31,7 @@ from ..calcfile.spec import TimeHistorySpec
 from ..model import SolverRun
 from .codegen import NumericSystem, numeric
 from .lagrange import Derivation
+from . import switches as sw
 from .stickslip import STUCK, Phase, StickSlip, affine_in, slip_terms
 
 
@@ -96,7 +99,8 @@ def power_functions(derivation: Derivation, params: dict[str, float]):
 
 
 def integrate(system: NumericSystem, spec: TimeHistorySpec, y0: np.ndarray, powers,
-              linear_hz: float = 0.0, plan: StickSlip | None = None) -> tuple[Run, Run, Grid]:
+              linear_hz: float = 0.0, plan: StickSlip | None = None,
+              switches: sw.Switches = sw.NONE) -> tuple[Run, Run, Grid]:
     """Primary (DOP853 with energy integrals) and secondary runs over [0, duration].
 
     The primary run is stored at the user's samples with its dense output; the
@@ -104,7 +108,8 @@ def integrate(system: NumericSystem, spec: TimeHistorySpec, y0: np.ndarray, powe
     which `agreement` compares with the primary's dense output.
     `linear_hz` is the highest linearised frequency (0 when unknown).  With a
     stick-slip `plan` (Coulomb friction) both runs go through sliding and stuck
-    phases located by events.
+    phases located by events.  `switches` (see `find_switches`) gives both
+    runs their breakpoints and step limit.
     """
     t_eval = np.linspace(0.0, spec.duration, spec.points)
     n = system.n
@@ -128,19 +133,19 @@ def integrate(system: NumericSystem, spec: TimeHistorySpec, y0: np.ndarray, powe
     energy_atol = np.concatenate([atol, [spec.atol, spec.atol]])
     if plan is None:
         first = _run("DOP853", primary_rhs, np.concatenate([y0, [0.0, 0.0]]), t_eval, spec,
-                     energy_atol, dense=True)
+                     energy_atol, dense=True, switches=switches)
     else:
         first = _phased_run("DOP853", plan, np.concatenate([y0, [0.0, 0.0]]), t_eval, spec, energy_atol,
-                            energy=True)
+                            energy=True, switches=switches)
     grid = comparison_grid(first, t_eval, n, linear_hz) if first.solver.success else Grid(t_eval, 0.0, "", False)
     budget = None if first.solver.success else max(SECOND_RUN_BUDGET * first.solver.nfev, MIN_BUDGET)
     # The multistep check runs 100 times tighter: its error constant is larger.
     if plan is None:
         second = _run(spec.second_method, secondary_rhs, y0, grid.t, spec, atol, dense=False, tighten=1e-2,
-                      budget=budget)
+                      budget=budget, switches=switches)
     else:
         second = _phased_run(spec.second_method, plan, y0, grid.t, spec, atol, energy=False, tighten=1e-2,
-                             budget=budget)
+                             budget=budget, switches=switches)
     return first, second, grid
 
 
@@ -153,12 +158,22 @@ def stick_slip(derivation: Derivation, params: dict[str, float]) -> StickSlip | 
     return plan if affine_in(terms, derivation, plan.sigma) else None
 
 
+def find_switches(derivation: Derivation, params: dict[str, float], spec: TimeHistorySpec,
+                  plan: StickSlip | None) -> sw.Switches:
+    """Breakpoints and step limit of the runs (mechanics.switches); the plan's slip terms go by events."""
+    exclude = tuple(term.args[0] for term in plan.terms) if plan is not None else ()
+    atol = _atol(np.zeros(2 * len(derivation.q)), spec.atol)
+    return sw.find(derivation, params, spec.duration, atol, exclude)
+
+
 def _phased_run(method, plan: StickSlip, y0, t_eval, spec: TimeHistorySpec, atol, energy: bool,
-                tighten: float = 1.0, budget: int | None = None) -> Run:
+                tighten: float = 1.0, budget: int | None = None, switches: sw.Switches = sw.NONE) -> Run:
     """A run through sliding and stuck phases (see mechanics.stickslip), one solve_ivp per phase.
 
     Each phase ends at an event (a slip velocity reaching zero, a stuck
-    term's friction reaching its limit); the mode is then chosen afresh.
+    term's friction reaching its limit), where the mode is chosen afresh, or
+    at an explicit switching time, where each stuck term is decided afresh
+    (the force needed to hold it may have jumped past the friction limit).
     """
     n = plan.n
     counter = {"nfev": 0}
@@ -166,23 +181,32 @@ def _phased_run(method, plan: StickSlip, y0, t_eval, spec: TimeHistorySpec, atol
     rest = np.full(len(plan.terms), float(np.max(atol[n:2 * n])))
     t0, y = 0.0, np.asarray(y0, dtype=float).copy()
     phases: list[Phase] = []
+    edges = switches.edges(spec.duration)
     try:
-        mode = _safe(plan.initial_mode, 0.0, y[:n], y[n:2 * n], rest)
+        at = (lambda t: _inside_time(edges, t, spec.duration)) if switches.clamps else (lambda t: t)
+        mode = _safe(plan.initial_mode, at(0.0), y[:n], y[n:2 * n], rest)
         for j in range(len(mode)):
             y = plan.stick(y, mode, j)
         while True:
-            rhs = _phase_rhs(plan, mode, energy, counter, budget)
-            events, outcomes = _phase_events(plan, mode)
-            sol = solve_ivp(rhs, (t0, spec.duration), y, method=method, rtol=rtol, atol=atol,
-                            dense_output=True, events=events or None)
+            a, b = _segment(edges, t0)
+            rhs = sw.inside(_phase_rhs(plan, mode, energy, counter, budget), a, b, spec.duration,
+                            switches.clamps)
+            events, outcomes = _phase_events(plan, mode, sw.clamp(a, b, spec.duration) if switches.clamps
+                                             else (lambda t: t))
+            sol = sw.solve(rhs, (t0, b), y, method, switches.limit, rtol=rtol, atol=atol,
+                           dense_output=True, events=events or None)
             if not sol.success:
                 solver = SolverRun(method, False, int(sol.status), str(sol.message), counter["nfev"])
                 return Run(solver, t_eval, np.zeros((len(y0), 0)))
             t1 = float(sol.t[-1])
             if t1 > t0:
                 phases.append(Phase(t0, t1, mode, sol.sol))
-            if sol.status == 0 or t1 >= spec.duration:
+            if t1 >= spec.duration or (sol.status == 0 and b >= spec.duration):
                 break
+            if sol.status == 0:
+                y, t0 = sol.y[:, -1].copy(), b
+                mode = _redecide_stuck(plan, mode, at(b), y)
+                continue
             if len(phases) >= MAX_PHASES:
                 raise _RhsFailure(f"stopped at t = {t1:.6g} s after {MAX_PHASES} stick-slip phases "
                                   "(friction chattering between sticking and sliding)")
@@ -190,7 +214,7 @@ def _phased_run(method, plan: StickSlip, y0, t_eval, spec: TimeHistorySpec, atol
             j, new = outcomes[k]
             y = sol.y[:, -1].copy()
             if new is None:
-                new = _safe(plan.mode_at_rest, t1, y[:n], y[n:2 * n], mode, j)
+                new = _safe(plan.mode_at_rest, at(t1), y[:n], y[n:2 * n], mode, j)
             mode = tuple(new if i == j else v for i, v in enumerate(mode))
             y, t0 = plan.stick(y, mode, j), t1
     except _RhsFailure as exc:
@@ -228,21 +252,47 @@ def _phase_rhs(plan: StickSlip, mode, energy: bool, counter, budget):
     return rhs
 
 
-def _phase_events(plan: StickSlip, mode):
-    """Terminal events of a phase and, for each, (term, new mode or None = decide at rest)."""
+def _segment(edges: list[float], t: float) -> tuple[float, float]:
+    """The segment [a, b) between explicit switching times that holds t, s."""
+    k = int(np.searchsorted(edges, t, side="right")) - 1
+    k = min(max(k, 0), len(edges) - 2)
+    return edges[k], edges[k + 1]
+
+
+def _inside_time(edges: list[float], t: float, duration: float) -> float:
+    """A time just after t inside the segment that starts at or holds t, where its switches hold, s."""
+    a, b = _segment(edges, t)
+    return sw.clamp(a, b, duration)(t)
+
+
+def _redecide_stuck(plan: StickSlip, mode, t: float, y) -> tuple[int, ...]:
+    """At an explicit switching time: each stuck term stays stuck or slides on (mode_at_rest)."""
+    n = plan.n
+    new = list(mode)
+    for j, state in enumerate(mode):
+        if state == STUCK:
+            new[j] = _safe(plan.mode_at_rest, t, y[:n], y[n:2 * n], tuple(new), j)
+    return tuple(new)
+
+
+def _phase_events(plan: StickSlip, mode, clamp=lambda t: t):
+    """Terminal events of a phase and, for each, (term, new mode or None = decide at rest).
+
+    Like the equations, the events are read at `clamp(t)` (inside the segment, mechanics.switches.clamp).
+    """
     n = plan.n
     events, outcomes = [], []
     for j, state in enumerate(mode):
         if state != STUCK:
             def slip(t, y, j=j):
-                return plan.slip(t, y[:n], y[n:2 * n])[j]
+                return plan.slip(clamp(t), y[:n], y[n:2 * n])[j]
             slip.terminal, slip.direction = True, -state
             events.append(slip)
             outcomes.append((j, None))
             continue
         for limit in (1.0, -1.0):
             def breakaway(t, y, j=j, limit=limit):
-                return plan.sigma_of(t, y[:n], y[n:2 * n], mode)[j] - limit
+                return plan.sigma_of(clamp(t), y[:n], y[n:2 * n], mode)[j] - limit
             breakaway.terminal, breakaway.direction = True, limit
             events.append(breakaway)
             outcomes.append((j, int(limit)))
@@ -319,8 +369,8 @@ def _safe(fn, *args):
 
 
 def _run(method, rhs, y0, t_eval, spec: TimeHistorySpec, atol, dense: bool,
-         tighten: float = 1.0, budget: int | None = None) -> Run:
-    """One solve_ivp run; stopped as a failure after `budget` evaluations when given."""
+         tighten: float = 1.0, budget: int | None = None, switches: sw.Switches = sw.NONE) -> Run:
+    """One solve_ivp run (one per segment with switches); stopped as a failure after `budget` evaluations."""
     counter = {"nfev": 0}
 
     def counted(t, y):
@@ -332,6 +382,8 @@ def _run(method, rhs, y0, t_eval, spec: TimeHistorySpec, atol, dense: bool,
 
     rtol = max(spec.rtol * tighten, 1e-13)
     atol = atol * tighten
+    if switches.any:
+        return _segmented_run(method, counted, counter, y0, t_eval, spec, rtol, atol, dense, switches)
     try:
         sol = solve_ivp(counted, (0.0, spec.duration), y0, method=method, t_eval=t_eval,
                         rtol=rtol, atol=atol, dense_output=dense)
@@ -341,6 +393,31 @@ def _run(method, rhs, y0, t_eval, spec: TimeHistorySpec, atol, dense: bool,
     if not sol.success:
         return Run(solver, t_eval, np.zeros((len(y0), 0)))
     return Run(solver, sol.t, sol.y, sol.sol if dense else None)
+
+
+def _segmented_run(method, counted, counter, y0, t_eval, spec: TimeHistorySpec, rtol, atol, dense: bool,
+                   switches: sw.Switches) -> Run:
+    """A run restarted at every explicit switching time, each step limited by the state switches."""
+    edges = switches.edges(spec.duration)
+    y, parts = np.asarray(y0, dtype=float), []
+    try:
+        for a, b in zip(edges[:-1], edges[1:]):
+            fun = sw.inside(counted, a, b, spec.duration, switches.clamps)
+            sol = sw.solve(fun, (a, b), y, method, switches.limit, rtol=rtol, atol=atol, dense_output=True)
+            if not sol.success:
+                solver = SolverRun(method, False, int(sol.status), str(sol.message), counter["nfev"])
+                return Run(solver, t_eval, np.zeros((len(y0), 0)))
+            parts.append(Phase(a, b, (), sol.sol))
+            y = sol.y[:, -1]
+    except _RhsFailure as exc:
+        return Run(SolverRun(method, False, -1, str(exc), counter["nfev"]), t_eval, np.zeros((len(y0), 0)))
+    whole = PiecewiseSolution(parts)
+    limit = (f", each step limited by {switches.limit.count} state switch argument(s)"
+             if switches.limit is not None else "")
+    solver = SolverRun(method, True, 0, f"The solver successfully reached the end of the integration interval "
+                       f"in {len(parts)} segment(s) between explicit switching times{limit}.", counter["nfev"])
+    t_eval = np.asarray(t_eval, dtype=float)
+    return Run(solver, t_eval, whole(t_eval), whole if dense else None)
 
 
 def agreement(first: Run, second: Run, n: int) -> float:
