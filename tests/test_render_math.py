@@ -11,7 +11,8 @@ from calcsheaf.render import mathsvg
 from calcsheaf.render.equation import ROW_WIDTH, layout, visible_width
 from calcsheaf.render.mathml import equation_mathml
 from calcsheaf.render.mathsvg import EquationImages, equation_key
-from calcsheaf.render.symbols import latex, name_html, name_latex
+from calcsheaf.calcfile.names import name_html, name_latex
+from calcsheaf.render.symbols import latex
 
 MATHML = "{http://www.w3.org/1998/Math/MathML}"
 
