@@ -301,3 +301,39 @@ def test_two_roots_between_scan_points_are_found():
     # A root next to a scan point where u is exactly zero (t = 0.5 s is one): the 50 µs pulse ends too.
     pulse = (TIME - sp.Float(0.5)) * (sp.Float(0.50005) - TIME)
     assert switches.breakpoints([pulse], 2.0) == pytest.approx((0.5, 0.50005), abs=1e-12)
+
+
+def test_a_step_load_at_an_unround_time_is_a_breakpoint(tmp_path):
+    """A force F·step(t − t1) on a spring-mass at rest: x_max = 2F/k, the dynamic load factor
+    of a suddenly applied constant force (closed form of the step response, x = F/k (1 − cos ωt)).
+    Both the energy audit's switch records and the breakpoint scan see t1 = 0.137 s."""
+    report = report_of(tmp_path, """
+        [calc]
+        number = "B-15"
+        title = "step load at t1"
+        [parameters]
+        m = "1 kg"
+        k = "100 N/m"
+        F = "10 N"
+        t1 = "0.137 s"
+        [coordinates]
+        x = "mm"
+        [energy]
+        kinetic = "m/2*dot(x)**2"
+        potential = "k/2*x**2"
+        [generalized_forces]
+        x = "F*step(t - t1)"
+        [initial]
+        x = "0 mm"
+        "dot(x)" = "0 m/s"
+        [time_history]
+        duration = "1 s"
+        points = 100
+        [[result]]
+        name = "xmax"
+        expr = "max(x)"
+        unit = "mm"
+        """)
+    assert report.error is None, report.error
+    assert report.passed, [c for c in report.checks if not c.passed]
+    assert result(report, "xmax") == pytest.approx(2 * 10 / 100 * 1000, rel=1e-7)

@@ -100,7 +100,8 @@ def breakpoints(time_args, duration: float) -> tuple[float, ...]:
     `hidden_roots` adds what that scan can miss: pairs of roots between two
     scan points, and a root next to a scan point where u is exactly zero.
     """
-    roots = sorted(ts for u in time_args for ts in (*switch_times(u, duration), *hidden_roots(u, duration)))
+    roots = sorted(ts for u in time_args
+                   for ts in (*(s.t for s in switch_times(u, duration)), *hidden_roots(u, duration)))
     merged: list[float] = []
     tol = 1e-12 * max(1.0, duration)
     for ts in roots:
