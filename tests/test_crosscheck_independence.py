@@ -137,18 +137,25 @@ compare = { displacement_m = "at(x, 0.13)" }
     assert not report.passed
 
 
-def test_comparison_of_parameters_can_fail_and_is_independent(tmp_path):
-    # a design value against the case's closed form (here k/2 against sqrt(k/m)/(2 pi)
-    # evaluated with k): it fails on its own when the numbers differ, so it is a real check
+def test_comparison_of_parameters_only_is_not_independent(tmp_path):
+    """The closed form evaluated again from the parameters (here sqrt(k/m)/(2 pi), exactly
+    the case's formula, and 0*natural_frequency(1) + a hand value) cannot fail whatever the
+    analysis computes: flagged, and it does not count as a passed check."""
     report = analysed(tmp_path, """
+[parameters.f_hand]
+value = "1 Hz"
+
 [[crosscheck]]
 case = "sdof_viscous"
 inputs = { m = "m", k = "k", c = "c" }
-compare = { natural_frequency_hz = "sqrt(k/(2*m))/(2*pi)" }
+compare = { natural_frequency_hz = "sqrt(k/m)/(2*pi)", damped_frequency_hz = "0*natural_frequency(1) + f_hand" }
 """)
-    (row,) = report.crosschecks
-    assert row.independent and not row.passed
-    assert row.relative_error == pytest.approx(1 - 1 / math.sqrt(2), rel=1e-12)
+    rows = {r.quantity: r for r in report.crosschecks}
+    same = rows["natural_frequency_hz"]
+    assert same.relative_error < 1e-12 and not same.independent and not same.passed
+    assert "parameters only" in same.dependence
+    assert not rows["damped_frequency_hz"].independent
+    assert not report.passed
 
 
 def test_render_shows_inputs_query_and_the_flag(tmp_path):

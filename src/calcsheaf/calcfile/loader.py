@@ -808,7 +808,8 @@ class _CalcLoader:
         return tuple(out)
 
 
-_HERTZ_QUERIES = frozenset({"natural_frequency", "damped_frequency", "frf_peak_frequency"})
+_HERTZ_QUERIES = frozenset({"natural_frequency", "damped_frequency", "undamped_frequency",
+                            "frf_peak_frequency"})
 
 
 _POSITION_QUERIES = frozenset({"equilibrium", "initial", "final", "at", "max", "min", "peak",

@@ -138,8 +138,9 @@ def independence(ctx: QueryContext, crosscheck, compared: sp.Expr, tolerance: fl
     value is only the initial state: initial(), at(..., t) with t at most EARLY_FRACTION
     of the shortest natural period or of the sample step (t = 0 included), or
     max/min/peak of a state expression whose extreme is its value at t = 0.  [[result]] names are followed to their expressions.
-    A comparison of parameters only (a design value against the case's optimum, say)
-    can fail on its own and is not flagged.
+    (3) the compared value uses parameters only (no query: the closed form evaluated
+    again, or a design value against the case's optimum), which checks the inputs and not
+    the analysis; a design rule of that kind belongs in a [[criterion]].
     """
     compared = _expanded(ctx.spec, compared)
     calls = _query_calls(compared)
@@ -150,7 +151,11 @@ def independence(ctx: QueryContext, crosscheck, compared: sp.Expr, tolerance: fl
         if shared:
             return (f"handbook input {name} is computed from {_describe(shared[0])}, the calc "
                     "result being compared; give the case the calc's parameters instead")
-    if calls and all(_initial_state(ctx, c, tolerance, key) for c in calls):
+    if not calls:
+        return ("the compared value uses parameters only, no result of the analysis, so it "
+                "checks the inputs against the closed form, not the calc; compare a query of "
+                "the motion or the modes (e.g. natural_frequency(1)), or make it a [[criterion]]")
+    if all(_initial_state(ctx, c, tolerance, key) for c in calls):
         return ("the compared value is the initial state given in the calc (or the state "
                 f"at most {EARLY_FRACTION:.0%} of the shortest natural period or sample step "
                 "after it), not a computed result; compare a query of the motion or the modes")

@@ -22,12 +22,16 @@ class Quantity:
     """One closed-form result of a case.
 
     `compute` maps SI inputs to the SI value in `unit` (pint-parseable; "1" for
-    a pure number).
+    a pure number).  `design`: a design rule of the inputs alone (an optimum), with no
+    analysis result to compare it with; a crosscheck of it compares parameters only and
+    is flagged as not independent, so self-test calcs leave it out (its closed form is
+    tested in tests/test_handbook_vibration.py).
     """
     name: str
     unit: str
     formula: str
     compute: Callable[[Inputs], float]
+    design: bool = False
 
 
 @dataclass(frozen=True)
