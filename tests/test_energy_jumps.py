@@ -148,3 +148,42 @@ def test_continuous_moving_switch_is_not_counted(tmp_path):
     report = report_of(tmp_path, step_calc("k/2*x**2 - F0*x*min(t/t1, 1)"))
     assert not any("switches in time" in n for n in report.energy.notes)
     assert check(report, "energy")[0].passed, check(report, "energy")[0].detail
+
+
+def test_a_constraint_that_moves_in_time_is_named_in_the_audit_notes(tmp_path):
+    """A support driven through a constraint y_b = Y sin(W t) feeds work λ·G q̇ into the
+    system: the audit passes on h with that work counted, and its notes say so rather
+    than claiming h = T + V is conserved (work-energy balance, any dynamics text)."""
+    report = report_of(tmp_path, """
+        [calc]
+        number = "E-9"
+        title = "spring-mass on a support moved by a constraint"
+        [parameters]
+        m = "2 kg"
+        m_b = "1 kg"
+        k = "800 N/m"
+        Y = "5 mm"
+        W = "12 rad/s"
+        [coordinates]
+        x = "m"
+        y_b = "m"
+        [energy]
+        kinetic = "m/2*dot(x)**2 + m_b/2*dot(y_b)**2"
+        potential = "k/2*(x - y_b)**2"
+        [[constraint]]
+        name = "F_drive"
+        equation = "y_b - Y*sin(W*t)"
+        [initial]
+        x = "0 m"
+        y_b = "0 m"
+        "dot(x)" = "0 m/s"
+        "dot(y_b)" = "0.06 m/s"
+        [analysis]
+        equilibrium = false
+        [time_history]
+        duration = "1 s"
+        points = 200
+        """)
+    assert report.error is None, report.error
+    assert report.energy.passed, report.energy
+    assert any("A constraint depends on t" in n and "not conserved" in n for n in report.energy.notes)

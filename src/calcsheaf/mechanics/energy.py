@@ -236,6 +236,9 @@ def _notes(d: Derivation, params, is_natural: bool) -> list[str]:
     if is_natural:
         notes.append("T is a homogeneous quadratic form in the velocities and L does not depend "
                      "on t, so h = T + V.")
+    if d.lambdas and sp.Matrix(d.g).has(TIME):
+        notes.append("A constraint depends on t (a prescribed motion): its force does work "
+                     "λ·G q̇, counted in the work put in, so h (and T + V) is not conserved.")
     else:
         notes.append("h differs from T + V (kinetic energy not homogeneous quadratic in the "
                      "velocities, or L depends on t): the audit uses h.")
