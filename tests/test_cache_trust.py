@@ -281,13 +281,13 @@ def test_sandbox_reads_no_attribute_of_other_objects(tmp_path):
 
 def test_bad_template_limit_is_refused(monkeypatch):
     monkeypatch.setenv("CALCSHEAF_TEMPLATE_TIME_LIMIT", "-1")
-    with pytest.raises(BuildError) as refused:
+    with pytest.raises(InputError) as refused:
         theme.limits()
     assert refused.value.message == (
-        "environment: CALCSHEAF_TEMPLATE_TIME_LIMIT: '-1' is not a positive number Fix: set "
-        "CALCSHEAF_TEMPLATE_TIME_LIMIT to a positive number, or unset it for the default 60")
+        "environment: CALCSHEAF_TEMPLATE_TIME_LIMIT: '-1' is not a number of seconds from 0.5 "
+        "to 3600 Fix: set it to e.g. 60, or unset CALCSHEAF_TEMPLATE_TIME_LIMIT for the default")
     monkeypatch.setenv("CALCSHEAF_TEMPLATE_TIME_LIMIT", "nan")
-    with pytest.raises(BuildError):
+    with pytest.raises(InputError):
         theme.limits()
 
 
