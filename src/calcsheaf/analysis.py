@@ -225,8 +225,9 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
     ctx.freqs = freqs
     X = frequency.sweep(ctx.linear, force, freqs)
     amplitude, phase, units, peaks, omitted = {}, {}, {}, {}, {}
+    modes = frequency.resonances(ctx.linear)
     for c, row in zip(spec.coordinates, X):
-        _response_row(c, row, ctx.amplitude_function(c.name), freqs,
+        _response_row(c, row, ctx.amplitude_function(c.name), freqs, modes,
                       amplitude, phase, units, peaks)
     for index, o in enumerate(spec.outputs, start=1):
         try:
@@ -245,19 +246,21 @@ def _frequency_response(spec, ctx: QueryContext, report) -> None:
         if not np.any(np.abs(values) > 0):
             omitted[o.name] = "linearises to zero about the equilibrium (no first-order response)"
             continue
-        _response_row(o, values, amp, freqs, amplitude, phase, units, peaks)
+        _response_row(o, values, amp, freqs, modes, amplitude, phase, units, peaks)
     report.frequency_response = m.FrequencyResponse(
         frequency_hz=freqs, amplitude=amplitude, phase_deg=phase, units=units,
         excitation={n: text for n, _, text in fr.force}, peaks=peaks, omitted=omitted)
 
 
-def _response_row(item, complex_si, amplitude_at, freqs, amplitude, phase, units, peaks) -> None:
-    """One coordinate or output: |X| and its peak in the display unit, phase in degrees."""
+def _response_row(item, complex_si, amplitude_at, freqs, modes, amplitude, phase, units,
+                  peaks) -> None:
+    """One coordinate or output: |X| and its peak (searched also at the `modes`,
+    frequency.resonances) in the display unit, phase in degrees."""
     magnitude = np.abs(complex_si)
     amplitude[item.name] = magnitude / item.factor
     phase[item.name] = np.degrees(np.angle(complex_si))
     units[item.name] = item.unit
-    best, where = frequency.peak(amplitude_at, freqs, magnitude)
+    best, where = frequency.peak(amplitude_at, freqs, magnitude, modes)
     peaks[item.name] = m.ResponsePeak(amplitude=best / item.factor, frequency_hz=where)
 
 

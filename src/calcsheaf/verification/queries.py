@@ -330,7 +330,7 @@ class QueryContext:
         if name == "frf":
             return amplitude_at(float(numeric(args[1], self.params)))
         values = np.array([amplitude_at(f) for f in self.freqs])
-        best, where = frequency.peak(amplitude_at, self.freqs, values)
+        best, where = frequency.peak(amplitude_at, self.freqs, values, frequency.resonances(self.linear))
         return best if name == "frf_peak" else where
 
     def amplitude_function(self, target: str):
