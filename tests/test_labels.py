@@ -256,3 +256,53 @@ def test_sheets_cite_book_edition_topic_and_never_from_memory():
         assert "(from memory)" in case.source_note, case.key
         assert f"[[reference]]\nid = \"R1\"\ntext = \"{case.source}\"" in case.selftest_calc
         assert case.source_note in table.case_section(case)
+
+
+def test_a_criterion_and_result_on_a_drive_moment_default_to_n_m(tmp_path):
+    """An arm driven at constant speed W through the constraint phi - W t, a collar on a
+    spring sliding along it: the drive moment is N·m (not J) in the criterion and in a
+    result without a unit (a constraint on an angle has a moment for its force: SI
+    practice writes a moment in N·m, keeping J for energy)."""
+    report = report_of(tmp_path, """
+        [calc]
+        number = "B-04"
+        title = "arm driven by a constraint; collar on a spring"
+        [parameters]
+        m = "0.5 kg"
+        J = "0.05 kg*m^2"
+        k = "200 N/m"
+        r0 = "0.3 m"
+        W = "12 rad/s"
+        M_cap = "5 N*m"
+        [coordinates]
+        r = "mm"
+        phi = "deg"
+        [energy]
+        kinetic = "m/2*(dot(r)**2 + r**2*dot(phi)**2) + J/2*dot(phi)**2"
+        potential = "k/2*(r - r0)**2"
+        [[constraint]]
+        name = "M_drive"
+        equation = "phi - W*t"
+        [initial]
+        r = "300 mm"
+        phi = "0 deg"
+        "dot(r)" = "0 m/s"
+        "dot(phi)" = "12 rad/s"
+        [time_history]
+        duration = "1 s"
+        points = 100
+        [[result]]
+        name = "Mmax"
+        expr = "max(M_drive)"
+        [[criterion]]
+        name = "drive torque"
+        demand = "peak(M_drive)"
+        capacity = "M_cap"
+        """)
+    assert report.error is None, report.error
+    (criterion,) = report.criteria
+    assert criterion.unit == "N*m"
+    (mmax,) = [r for r in report.results if r.name == "Mmax"]
+    assert mmax.unit == "N*m"
+    data = json.loads(results_json(report))
+    assert data["results"]["Mmax"]["unit"] == "N*m"

@@ -101,6 +101,8 @@ class _CalcLoader:
         self.values: dict[str, float] = {}     # parameter values, SI
         # [[result]] names whose value is a frequency in Hz, for default units of later uses
         self.hertz: set[str] = set()
+        # names shown in a moment unit (N*m, kN*m): energy-dimensioned defaults follow them
+        self.moments: set[str] = set()
         # parameters and results that are angular rates or cyclic frequencies (see rates)
         self.rate_kinds: dict[str, str] = {}
         self.angle_units: dict[str, str] = {}  # coordinates given in an angle unit: name -> unit
@@ -547,6 +549,7 @@ class _CalcLoader:
             unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text, force_dim))
             if unit is None:
                 continue
+            self._note_moment(name, unit_text, force_dim)
             out.append(S.Constraint(name=name, equation=equation, unit=unit_text,
                                     factor=si_factor(unit),
                                     label=self.label(f"{key}.label", row.get("label"))))
@@ -685,16 +688,30 @@ class _CalcLoader:
         return S.FrequencyResponseSpec(force=tuple(rows), start_hz=start, stop_hz=stop,
                                        points=int(points or 400), spacing=spacing or "linear")
 
+    def _note_moment(self, name: str, unit_text: str, dim) -> None:
+        """Remember `name` as a moment when its energy-dimensioned unit is not written in J."""
+        if dim == ureg.joule.dimensionality and "J" not in unit_text:
+            self.moments.add(name)
+
+    def _moment_unit(self, expr: sp.Expr, dim) -> str | None:
+        """"N*m" for an energy-dimensioned value built from a moment (a constraint on an
+        angle, an output in N*m), where the dimension alone would say J; else None."""
+        if dim != ureg.joule.dimensionality:
+            return None
+        return "N*m" if any(s.name in self.moments for s in expr.free_symbols) else None
+
     def _named(self, key: str, row: dict, name: str, expr: sp.Expr) -> S.NamedExpr | None:
         dim = DimensionChecker(self.dims, self.where(f"{key}.expr")).infer(expr)
         unit_text = self.string(f"{key}.unit", row.get("unit"), None)
         if unit_text is None:
             unit_text = _frequency_unit(expr, self.hertz) if dim == ureg.hertz.dimensionality else None
-            unit_text = unit_text or _angle_unit(expr, self.angle_units) or si_unit_text(dim)
+            unit_text = (unit_text or _angle_unit(expr, self.angle_units)
+                         or self._moment_unit(expr, dim) or si_unit_text(dim))
         unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text,
                                                        DIMENSIONLESS if dim is None else dim))
         if unit is None:
             return None
+        self._note_moment(name, unit_text, dim)
         self.dims[name] = DIMENSIONLESS if dim is None else dim
         if unit_text == "Hz":
             self.hertz.add(name)
@@ -769,7 +786,9 @@ class _CalcLoader:
             dim = dd if dd is not None else (dc if dc is not None else DIMENSIONLESS)
             hertz = dim == ureg.hertz.dimensionality and (
                 _frequency_unit(demand, self.hertz) or _frequency_unit(capacity, self.hertz)) == "Hz"
-            unit_text = self.string(f"{key}.unit", row.get("unit"), "Hz" if hertz else si_unit_text(dim))
+            default = "Hz" if hertz else (self._moment_unit(demand, dim) or self._moment_unit(capacity, dim)
+                                          or si_unit_text(dim))
+            unit_text = self.string(f"{key}.unit", row.get("unit"), default)
             unit = self.attempt(lambda: self._display_unit(f"{key}.unit", unit_text, dim))
             if unit is None:
                 continue
