@@ -12,7 +12,8 @@
 set -euo pipefail
 ROOT=$(cd "$(dirname "$0")/.." && pwd)
 PYTHON=${PYTHON:-$ROOT/.venv/bin/python}
-WORK=${MUTATION_DIR:-/tmp/calcsheaf-mutation$([ "${EXTREMES:-0}" = 1 ] && echo -extremes)}
+SUFFIX=""; if [ "${EXTREMES:-0}" = 1 ]; then SUFFIX="-extremes"; fi
+WORK=${MUTATION_DIR:-/tmp/calcsheaf-mutation$SUFFIX}
 JOBS=${JOBS:-2}
 if [ "${EXTREMES:-0}" = 1 ]; then
 # The extremes between samples: the finder (extremes.py, with the two properties of
