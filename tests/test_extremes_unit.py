@@ -442,3 +442,56 @@ def test_max_query_needs_a_time_history(tmp_path):
     ctx.history = None
     with pytest.raises(AnalysisError, match=r"max\(\) needs a time history"):
         _value(spec, ctx, "x_max")
+
+
+# ---- survivors of the first mutation run ----------------------------------------------------
+def test_dense_value_exactly_zero_at_a_bracket_end_is_the_switching_time():
+    """Grid −1, +1 but the dense value is 0 at an end: that end, without dividing by it."""
+    t = np.array([0.0, 1.0])
+    grid = [np.array([-1.0, 1.0])]
+    assert switching_times(t, grid, lambda j, s: s - 1.0) == [1.0]
+    assert switching_times(t, grid, lambda j, s: s) == [0.0]
+
+
+def test_switching_time_of_a_flat_crossing_to_the_stated_tolerance():
+    """∛(s − c) crosses zero with infinite slope, so brentq ends on its tolerance: 1e-15 + 1e-14·t.
+
+    (With brentq's default xtol of 2e-12 the time is 1e-13 off.)
+    """
+    c = 0.3
+    t = np.array([0.0, 1.0])
+    times = switching_times(t, [np.cbrt(t - c)], lambda j, s: float(np.cbrt(s - c)))
+    assert abs(times[0] - c) <= 1e-15 + 1e-14 * c
+
+
+def _plateau(crest_between: int):
+    """Grid values 0, 0.5, 0.5, 0.5, 0 at t = 0..4 and a smooth crest of 1 in (k, k + 1).
+
+    The bump sin²(π (s − k)) · 0.5 is zero at the grid times, so three equal grid
+    values hide it; only refining the plateau point whose bracket holds it finds 1.
+    """
+    t = np.arange(5.0)
+    v = np.array([0.0, 0.5, 0.5, 0.5, 0.0])
+    k = crest_between
+
+    def fn(s):
+        bump = 0.5 * math.sin(math.pi * (s - k)) ** 2 if k < s < k + 1 else 0.0
+        return float(np.interp(s, t, v)) + bump
+
+    return t, v, fn
+
+
+@pytest.mark.parametrize("k", [1, 2])
+def test_crest_hidden_in_a_plateau_of_three_equal_grid_values(k):
+    t, v, fn = _plateau(k)
+    found = extremes(t, v, fn)
+    assert found.max == pytest.approx(1.0, abs=1e-9)
+    assert found.t_max == pytest.approx(k + 0.5, abs=1e-4)
+
+
+def test_a_grid_without_a_dense_solution_is_interpolated(tmp_path):
+    """A fine grid recorded but no dense solution: the samples are used, not the dense path."""
+    spec, ctx = _context(tmp_path, shifted_cosine, dense=False)
+    ctx.history.grid = np.linspace(0.0, 3.0, 61)
+    x = np.array([shifted_cosine(s)[0] for s in np.linspace(0.0, 3.0, 7)])
+    assert _value(spec, ctx, "x_max") == float(np.max(x))
