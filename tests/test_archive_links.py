@@ -108,3 +108,19 @@ def test_issue_and_sign_refuse_links_in_issued(project, tiny_pdf, tmp_path):
     assert (victim / "C-1" / ".staging-keep2").is_dir()
     assert (victim / ".staging-keep" / "f").read_text() == "precious"
     assert sorted(p.name for p in (victim / "C-1").iterdir()) == [".staging-keep2"]
+
+
+def test_a_deeply_nested_manifest_is_a_message_in_history_sign_and_issue(project, tiny_pdf):
+    from calcsheaf.archive import keys as K, signoffs
+    _sign_both(project)
+    _issue(project, "A", tiny_pdf)
+    deep = project / "issued" / "C-1" / "B"
+    deep.mkdir()
+    (deep / MANIFEST).write_text("[" * 100000 + "]" * 100000)
+    for attempt in (lambda: revisions.revision_history(project, "C-1"),
+                    lambda: signoffs.sign(project, "C-1", "preparer", K.unlock("ab")),
+                    lambda: _issue(project, "C", tiny_pdf)):
+        with pytest.raises(ArchiveError) as caught:
+            attempt()
+        assert caught.value.problem == ("is not a calcsheaf manifest (not a JSON object)")
+        assert str(caught.value.file) == str(deep / MANIFEST)

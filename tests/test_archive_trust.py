@@ -278,6 +278,22 @@ def _replace_by_folder(rel):
     return change
 
 
+def _people_edit(**fields):
+    def change(folder):
+        people = json.loads((folder / "record/people.json").read_text())
+        people["preparer"].update(fields)
+        (folder / "record/people.json").write_bytes(pretty_json(people))
+    return change
+
+
+def _signoff_edit(**fields):
+    def change(folder):
+        records = json.loads((folder / "record/signoffs.json").read_text())
+        records["checker"].update(fields)
+        (folder / "record/signoffs.json").write_bytes(pretty_json(records))
+    return change
+
+
 def _link(folder):
     os.symlink("/etc/passwd", folder / "output" / "extra.txt")
 
@@ -303,6 +319,11 @@ MALFORMED = {
     "frozen calc is a folder": _replace_by_folder("inputs/calcs/c1.toml"),
     "record is a file": _write("record", "x"),
     "a link to a system file": _link,
+    "chain is text": _people_edit(chain="-----BEGIN CERTIFICATE-----"),
+    "chain is a number": _people_edit(chain=5),
+    "certificate is not PEM": _people_edit(certificate="not a certificate"),
+    "sign-off signature is a list": _signoff_edit(signature=["a", "b"]),
+    "manifest nested 100000 deep": _write(MANIFEST, "[" * 100000 + "]" * 100000),
 }
 
 
