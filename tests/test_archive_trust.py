@@ -136,6 +136,54 @@ def test_keygen_refuses_a_name_already_listed(project):
         keygen("Alice Able", "ef", project)
 
 
+@pytest.mark.parametrize("name,problem", [
+    ("Alice Able\u200b", "contains U+200B ZERO WIDTH SPACE, an invisible, control or unusual "
+                          "space character"),
+    ("Ali\u00adce Able", "contains U+00AD SOFT HYPHEN, an invisible, control or unusual space "
+                         "character"),
+    ("Eve\x01", "contains U+0001 UNNAMED CHARACTER, an invisible, control or unusual space "
+                "character"),
+    ("Eve\u00a0Hart", "contains U+00A0 NO-BREAK SPACE, an invisible, control or unusual space "
+                      "character"),
+    ("\u0410lice Able", "mixes letters of CYRILLIC and LATIN (e.g. U+0410 CYRILLIC CAPITAL "
+                        "LETTER A), which can look like another name")])
+def test_invisible_characters_and_mixed_scripts_in_a_name_are_refused(project, name, problem):
+    toml = project / "project.toml"
+    toml.write_text(toml.read_text() + f'\n[[person]]\nid = "mal"\nname = {json.dumps(name)}\n'
+                    'public_key = "AAAA"\n')
+    with pytest.raises(ArchiveError) as caught:
+        projectfiles.people(project)
+    assert caught.value.problem == f"the name of person[3] ('mal') {problem}"
+    assert caught.value.key == "person[3].name"
+    assert caught.value.fix.startswith("type the name with ordinary letters of one script")
+    from calcsheaf.project import load_project
+    with pytest.raises(CalcsheafError, match=r"the name of person\[3\] \('mal'\)"):
+        load_project(project)
+
+
+def test_a_name_all_in_look_alike_letters_repeats_a_listed_name(project):
+    toml = project / "project.toml"
+    text = toml.read_text()
+    toml.write_text(text + '\n[[person]]\nid = "mal"\nname = "\u0410\u04cf\u0456\u0441\u0435 '
+                    '\u0410\u044c\u04cf\u0435"\npublic_key = "AAAA"\n')   # Cyrillic throughout
+    with pytest.raises(ArchiveError, match=r"person\[3\] repeats the name of 'ab'"):
+        projectfiles.people(project)
+
+
+@pytest.mark.parametrize("name,problem", [
+    ("", "the name is empty"), ("  ", "the name is empty"),
+    ("A" * 65, "the name is 65 characters long; a certificate holds at most 64"),
+    ("Eve\nHart", "the name 'Eve\\nHart' contains U+000A UNNAMED CHARACTER, an invisible, "
+                  "control or unusual space character")])
+def test_keygen_refuses_an_empty_long_or_control_name(project, name, problem, capsys):
+    with pytest.raises(ArchiveError) as caught:
+        keygen(name, "ef", project)
+    assert caught.value.problem == problem and caught.value.key == "--name"
+    assert not K.key_path("ef").exists()
+    assert main(["keygen", "--name", name, "--id", "ef", "--project", str(project)]) == 1
+    assert "internal error" not in capsys.readouterr().err
+
+
 # --- a revision belongs to its project, calc, revision and history -----------------------
 
 def test_a_revision_copied_to_another_calc_or_revision_fails(project, tiny_pdf):
