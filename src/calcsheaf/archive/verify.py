@@ -120,8 +120,12 @@ def revision_problem(folder: Path, project_root: Path) -> str | None:
     superseding another); None when all its signature checks pass.  Fast: signatures and
     hashes only, no PDF signature check and no recompute."""
     rows, _, _ = _signed_rows(Path(folder), project_root)
-    failed = [f"{item}: {detail}" for item, ok, detail in rows if not ok]
-    return failed[0] if failed else None
+    failed = sorted((not item.startswith(("revision folder", "manifest signature", MANIFEST)), i)
+                    for i, (item, ok, _) in enumerate(rows) if not ok)
+    if not failed:
+        return None
+    item, _, detail = rows[failed[0][1]]   # a broken signature first: it quotes no edited text
+    return f"{item}: {detail}"
 
 
 def _load_json(folder: Path, rel: str, kind: type = dict) -> tuple:
