@@ -124,3 +124,17 @@ def test_a_deeply_nested_manifest_is_a_message_in_history_sign_and_issue(project
             attempt()
         assert caught.value.problem == ("is not a calcsheaf manifest (not a JSON object)")
         assert str(caught.value.file) == str(deep / MANIFEST)
+
+
+def test_issue_removes_only_the_staging_folders_an_issue_made(project, tiny_pdf):
+    _sign_both(project)
+    base = project / "issued" / "C-1"
+    (base / ".staging-keep").mkdir(parents=True)
+    (base / ".staging-keep" / "f").write_text("precious")
+    (base / ".staging-old").mkdir()
+    (base / ".staging-old" / revisions.STAGING_MARKER).write_bytes(b"")
+    folder = _issue(project, "A", tiny_pdf)
+    assert (base / ".staging-keep" / "f").read_text() == "precious"
+    assert not (base / ".staging-old").exists()
+    assert not (folder / revisions.STAGING_MARKER).exists()
+    assert not _failures(verify_path(folder)[0][1])

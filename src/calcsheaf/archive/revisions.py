@@ -361,10 +361,8 @@ def issue(project_root: Path, calc_number: str, revision: str, *, render: Render
         listed = projectfiles.people_from_data(
             projectfiles.parse_toml_bytes(project_bytes, project_toml), project_toml)
         keys = _unlock_both(listed, status, unlock or unlock_from_key_file)
-        for leftover in sorted(base.glob(".staging-*")):
-            if leftover.is_dir() and not leftover.is_symlink():
-                shutil.rmtree(leftover)      # from an interrupted issue; never published
-        staging = base / f".staging-{revision}"
+        _remove_own_leftovers(base)
+        staging = _new_staging(base, revision)
         try:
             inputs = _freeze_inputs(staging, calc_file.name, calc_bytes, project_bytes)
             history = pending_history(project_root, calc_number, revision, description, keys,
@@ -372,6 +370,7 @@ def issue(project_root: Path, calc_number: str, revision: str, *, render: Render
             facts = _stage(project_root, calc_number, revision, staging, inputs, status, keys,
                            render, history)
             facts["description"] = description
+            (staging / STAGING_MARKER).unlink()
             _seal(staging, facts, keys, _people_record(listed, keys), status["records"])
             final = revision_folder(project_root, calc_number, revision)
             os.rename(staging, final)
@@ -379,6 +378,31 @@ def issue(project_root: Path, calc_number: str, revision: str, *, render: Render
             if staging.exists():
                 shutil.rmtree(staging)
     return final
+
+
+STAGING_MARKER = ".calcsheaf-staging"
+
+
+def _remove_own_leftovers(base: Path) -> None:
+    """Remove the staging folders of interrupted issues: only real folders that carry the
+    marker an issue writes into its own staging folder (never a link, never another's)."""
+    for leftover in sorted(base.glob(".staging-*")):
+        marker = leftover / STAGING_MARKER
+        if leftover.is_dir() and not leftover.is_symlink() and marker.is_file() \
+                and not marker.is_symlink():
+            shutil.rmtree(leftover)      # from an interrupted issue; never published
+
+
+def _new_staging(base: Path, revision: str) -> Path:
+    """A new, empty staging folder of this issue, marked as made by it."""
+    staging = base / f".staging-{revision}"
+    try:
+        staging.mkdir()
+    except FileExistsError:
+        raise ArchiveError("a folder of this name, not made by an issue, is in the way",
+                           file=staging, fix="move it out of issued/, then issue again") from None
+    (staging / STAGING_MARKER).write_bytes(b"")
+    return staging
 
 
 def _freeze_inputs(staging: Path, calc_name: str, calc_bytes: bytes,
