@@ -141,7 +141,7 @@ def test_keygen_refuses_a_name_already_listed(project):
                           "space character"),
     ("Ali\u00adce Able", "contains U+00AD SOFT HYPHEN, an invisible, control or unusual space "
                          "character"),
-    ("Eve\x01", "contains U+0001 UNNAMED CHARACTER, an invisible, control or unusual space "
+    ("Eve\x01", "contains U+0001 CONTROL CHARACTER, an invisible, control or unusual space "
                 "character"),
     ("Eve\u00a0Hart", "contains U+00A0 NO-BREAK SPACE, an invisible, control or unusual space "
                       "character"),
@@ -173,7 +173,7 @@ def test_a_name_all_in_look_alike_letters_repeats_a_listed_name(project):
 @pytest.mark.parametrize("name,problem", [
     ("", "the name is empty"), ("  ", "the name is empty"),
     ("A" * 65, "the name is 65 characters long; a certificate holds at most 64"),
-    ("Eve\nHart", "the name 'Eve\\nHart' contains U+000A UNNAMED CHARACTER, an invisible, "
+    ("Eve\nHart", "the name 'Eve\\nHart' contains U+000A CONTROL CHARACTER, an invisible, "
                   "control or unusual space character")])
 def test_keygen_refuses_an_empty_long_or_control_name(project, name, problem, capsys):
     with pytest.raises(ArchiveError) as caught:

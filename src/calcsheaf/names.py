@@ -27,7 +27,8 @@ _LOOK_ALIKES = str.maketrans({
 
 def char_label(char: str) -> str:
     """U+XXXX NAME of one character, for messages."""
-    return f"U+{ord(char):04X} {unicodedata.name(char, 'UNNAMED CHARACTER')}"
+    fallback = "CONTROL CHARACTER" if unicodedata.category(char) == "Cc" else "UNNAMED CHARACTER"
+    return f"U+{ord(char):04X} {unicodedata.name(char, fallback)}"
 
 
 def name_problem(name: str) -> str | None:
