@@ -104,8 +104,8 @@ def _signed_rows(folder: Path, project_root: Path | None) -> tuple[list[Row], di
 
 
 def _linked_part(folder: Path) -> str | None:
-    """The first of the folder, its calc folder and issued/ (and, inside a revision, any
-    file or folder in it) that is a symbolic link; None when there is none."""
+    """The first of the folder, its calc folder and issued/ that is a symbolic link; None
+    when there is none (links inside the folder fail as files by folder_files)."""
     folder = Path(folder)
     for part in (folder, folder.parent, folder.parent.parent):
         if part.is_symlink():
