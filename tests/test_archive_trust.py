@@ -136,6 +136,54 @@ def test_keygen_refuses_a_name_already_listed(project):
         keygen("Alice Able", "ef", project)
 
 
+@pytest.mark.parametrize("name,problem", [
+    ("Alice Able\u200b", "contains U+200B ZERO WIDTH SPACE, an invisible, control or unusual "
+                          "space character"),
+    ("Ali\u00adce Able", "contains U+00AD SOFT HYPHEN, an invisible, control or unusual space "
+                         "character"),
+    ("Eve\x01", "contains U+0001 CONTROL CHARACTER, an invisible, control or unusual space "
+                "character"),
+    ("Eve\u00a0Hart", "contains U+00A0 NO-BREAK SPACE, an invisible, control or unusual space "
+                      "character"),
+    ("\u0410lice Able", "mixes letters of CYRILLIC and LATIN (e.g. U+0410 CYRILLIC CAPITAL "
+                        "LETTER A), which can look like another name")])
+def test_invisible_characters_and_mixed_scripts_in_a_name_are_refused(project, name, problem):
+    toml = project / "project.toml"
+    toml.write_text(toml.read_text() + f'\n[[person]]\nid = "mal"\nname = {json.dumps(name)}\n'
+                    'public_key = "AAAA"\n')
+    with pytest.raises(ArchiveError) as caught:
+        projectfiles.people(project)
+    assert caught.value.problem == f"the name of person[3] ('mal') {problem}"
+    assert caught.value.key == "person[3].name"
+    assert caught.value.fix.startswith("type the name with ordinary letters of one script")
+    from calcsheaf.project import load_project
+    with pytest.raises(CalcsheafError, match=r"the name of person\[3\] \('mal'\)"):
+        load_project(project)
+
+
+def test_a_name_all_in_look_alike_letters_repeats_a_listed_name(project):
+    toml = project / "project.toml"
+    text = toml.read_text()
+    toml.write_text(text + '\n[[person]]\nid = "mal"\nname = "\u0410\u04cf\u0456\u0441\u0435 '
+                    '\u0410\u044c\u04cf\u0435"\npublic_key = "AAAA"\n')   # Cyrillic throughout
+    with pytest.raises(ArchiveError, match=r"person\[3\] repeats the name of 'ab'"):
+        projectfiles.people(project)
+
+
+@pytest.mark.parametrize("name,problem", [
+    ("", "the name is empty"), ("  ", "the name is empty"),
+    ("A" * 65, "the name is 65 characters long; a certificate holds at most 64"),
+    ("Eve\nHart", "the name 'Eve\\nHart' contains U+000A CONTROL CHARACTER, an invisible, "
+                  "control or unusual space character")])
+def test_keygen_refuses_an_empty_long_or_control_name(project, name, problem, capsys):
+    with pytest.raises(ArchiveError) as caught:
+        keygen(name, "ef", project)
+    assert caught.value.problem == problem and caught.value.key == "--name"
+    assert not K.key_path("ef").exists()
+    assert main(["keygen", "--name", name, "--id", "ef", "--project", str(project)]) == 1
+    assert "internal error" not in capsys.readouterr().err
+
+
 # --- a revision belongs to its project, calc, revision and history -----------------------
 
 def test_a_revision_copied_to_another_calc_or_revision_fails(project, tiny_pdf):
@@ -278,6 +326,22 @@ def _replace_by_folder(rel):
     return change
 
 
+def _people_edit(**fields):
+    def change(folder):
+        people = json.loads((folder / "record/people.json").read_text())
+        people["preparer"].update(fields)
+        (folder / "record/people.json").write_bytes(pretty_json(people))
+    return change
+
+
+def _signoff_edit(**fields):
+    def change(folder):
+        records = json.loads((folder / "record/signoffs.json").read_text())
+        records["checker"].update(fields)
+        (folder / "record/signoffs.json").write_bytes(pretty_json(records))
+    return change
+
+
 def _link(folder):
     os.symlink("/etc/passwd", folder / "output" / "extra.txt")
 
@@ -303,6 +367,11 @@ MALFORMED = {
     "frozen calc is a folder": _replace_by_folder("inputs/calcs/c1.toml"),
     "record is a file": _write("record", "x"),
     "a link to a system file": _link,
+    "chain is text": _people_edit(chain="-----BEGIN CERTIFICATE-----"),
+    "chain is a number": _people_edit(chain=5),
+    "certificate is not PEM": _people_edit(certificate="not a certificate"),
+    "sign-off signature is a list": _signoff_edit(signature=["a", "b"]),
+    "manifest nested 100000 deep": _write(MANIFEST, "[" * 100000 + "]" * 100000),
 }
 
 

@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import re
-import unicodedata
 from pathlib import Path
 
-from . import identifiers
+from . import identifiers, names
 from .calcfile.loader import closest, did_you_mean
 from .calcfile.toml_source import read_toml
 from .errors import InputError, ProblemList
@@ -85,8 +84,11 @@ def _people(rows, problem) -> tuple[Person, ...]:
         bad_id = identifiers.problem("person id", row["id"])
         if bad_id:
             problem(f"{key}.id", bad_id, identifiers.fix("person id"))
+        bad_name = names.name_problem(row["name"])
+        if bad_name:
+            problem(f"{key}.name", f"the name of {key} ('{row['id']}') {bad_name}", names.FIX)
         for field in ("id", "name", "public_key"):
-            value = _same_name(row[field]) if field == "name" else row.get(field, "")
+            value = names.skeleton(row[field]) if field == "name" else row.get(field, "")
             if value and (field, value) in seen:
                 problem(f"{key}.{field}", f"the {field.replace('_', ' ')} of person[{i}] "
                         f"repeats that of an earlier person",
@@ -95,11 +97,6 @@ def _people(rows, problem) -> tuple[Person, ...]:
             seen.add((field, value))
         out.append(Person(**{k: row.get(k, "") for k in PERSON_KEYS}))
     return tuple(out)
-
-
-def _same_name(name: str) -> str:
-    """The form in which two names count as the same: NFKC, case-folded, single spaces."""
-    return " ".join(unicodedata.normalize("NFKC", name).casefold().split())
 
 
 def calc_files(root: Path) -> list[Path]:

@@ -111,6 +111,16 @@ def check_manifest_signatures(manifest_bytes: bytes, signatures: dict,
     return rows
 
 
+def parse_json(data: bytes):
+    """JSON from a revision folder; ValueError (never RecursionError) when it is not JSON
+    or is nested too deep to read."""
+    try:
+        return json.loads(data)
+    except RecursionError:
+        raise ValueError("nested too deeply to read") from None
+
+
 def read_manifest(folder: Path) -> tuple[bytes, dict]:
+    """The exact bytes of a folder's MANIFEST.json and their JSON (ValueError if not JSON)."""
     data = (Path(folder) / MANIFEST).read_bytes()
-    return data, json.loads(data)
+    return data, parse_json(data)

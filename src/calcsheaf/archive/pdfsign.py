@@ -101,10 +101,16 @@ def _check_one(sig, role: str, pems: list[str], *, is_last: bool) -> tuple[str, 
     item = f"pdf signature {FIELDS[role]}"
     if not pems:
         return item, False, f"no certificate recorded for the {role}"
-    recorded = _asn1_cert(pems[0])
+    try:
+        recorded = _asn1_cert(pems[0])
+        roots = [_asn1_cert(p) for p in pems]
+    except Exception as exc:   # a tampered record/people.json: a verdict, not a crash
+        return item, False, (f"the {role}'s recorded certificate (or chain) is not a PEM "
+                             f"X.509 certificate ({type(exc).__name__}): record/people.json "
+                             "was edited")
     if sig.signer_cert is None or sig.signer_cert.dump() != recorded.dump():
         return item, False, f"signed with a certificate that is not the {role}'s recorded one"
-    context = ValidationContext(trust_roots=[_asn1_cert(p) for p in pems], allow_fetching=False,
+    context = ValidationContext(trust_roots=roots, allow_fetching=False,
                                 moment=sig.self_reported_timestamp)
     try:
         status = validate_pdf_signature(sig, context)

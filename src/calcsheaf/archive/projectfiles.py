@@ -7,10 +7,9 @@ analysis stack to import.  The full validating loader lives in calcfile/loader.p
 from __future__ import annotations
 
 import tomllib
-import unicodedata
 from pathlib import Path
 
-from calcsheaf import identifiers
+from calcsheaf import identifiers, names
 from calcsheaf.errors import ArchiveError, InputError
 
 from .canonical import sha256_file
@@ -44,8 +43,10 @@ def people_from_data(data: dict, path: Path | None = None) -> dict[str, dict]:
 
     The roster is the only source of people's names.  Refused (ArchiveError naming the
     entry): an id that is not a valid person id, an id, a name or a public key that
-    appears twice (names compared ignoring case, spacing and compatibility forms), since
-    a second entry could otherwise sign under the first one's name.
+    appears twice (names compared by names.skeleton: ignoring case, spacing, compatibility
+    forms and Cyrillic/Greek look-alikes), since a second entry could otherwise sign under
+    the first one's name; a name with invisible or control characters or mixed scripts
+    (names.name_problem).
     """
     rows = data.get("person", []) or []
     if not isinstance(rows, list):
@@ -66,6 +67,10 @@ def people_from_data(data: dict, path: Path | None = None) -> dict[str, dict]:
         if found:
             raise ArchiveError(found, file=path, key=f"person[{index}].id",
                                fix=identifiers.fix("person id"))
+        found = names.name_problem(person["name"])
+        if found:
+            raise ArchiveError(f"the name of person[{index}] ('{person['id']}') {found}",
+                               file=path, key=f"person[{index}].name", fix=names.FIX)
         for field in ("id", "name", "public_key"):
             value = same_name(person[field]) if field == "name" else person[field]
             if not value:
@@ -82,8 +87,9 @@ def people_from_data(data: dict, path: Path | None = None) -> dict[str, dict]:
 
 
 def same_name(name: str) -> str:
-    """The form in which two names count as the same: NFKC, case-folded, single spaces."""
-    return " ".join(unicodedata.normalize("NFKC", name).casefold().split())
+    """The form in which two names count as the same (names.skeleton: NFKC, case-folded,
+    single spaces, Cyrillic and Greek look-alikes of Latin letters folded to them)."""
+    return names.skeleton(name)
 
 
 def people(project_root: Path) -> dict[str, dict]:

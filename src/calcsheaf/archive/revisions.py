@@ -23,12 +23,12 @@ from pathlib import Path
 from typing import Callable
 
 from calcsheaf import __version__, identifiers
-from calcsheaf.errors import ArchiveError
+from calcsheaf.errors import ArchiveError, CalcsheafError
 
 from . import projectfiles
 from .canonical import pretty_json, sha256_bytes, today
 from .keys import PersonKeys
-from .manifest import MANIFEST, SIGNATURES, make_manifest, sign_manifest
+from .manifest import MANIFEST, SIGNATURES, make_manifest, parse_json, sign_manifest
 from .pdfsign import sign_issued_pdf
 from .signoffs import ROLES, latest_manifest_sha, signoff_status
 
@@ -43,6 +43,29 @@ def calc_folder(project_root: Path, calc_number: str) -> Path:
 
 def revision_folder(project_root: Path, calc_number: str, revision: str) -> Path:
     return calc_folder(project_root, calc_number) / revision
+
+
+def linked_paths(project_root: Path, calc_number: str) -> list[Path]:
+    """issued/, issued/<CALC> and every entry directly in it that is a symbolic link: none
+    belongs in an archive (a link makes another calc's revision, or a folder outside the
+    project, pass as this calc's)."""
+    issued = Path(project_root) / "issued"
+    base = calc_folder(project_root, calc_number)
+    found = [p for p in (issued, base) if p.is_symlink()]
+    if base.is_dir() and not found:
+        found += [p for p in sorted(base.iterdir()) if p.is_symlink()]
+    return found
+
+
+def refuse_links(project_root: Path, calc_number: str) -> None:
+    """ArchiveError naming the first symbolic link under issued/ for this calc."""
+    links = linked_paths(project_root, calc_number)
+    if links:
+        raise ArchiveError("is a symbolic link; calcsheaf never follows links in issued/ "
+                           "(a link can make another calc's revision, or a folder outside the "
+                           "project, pass as this calc's)", file=links[0],
+                           fix="replace the link by the real folder from the archive, or "
+                               "remove it")
 
 
 def _manifests(project_root: Path, calc_number: str) -> dict[str, tuple[bytes, dict]]:
@@ -62,7 +85,7 @@ MANIFEST_KEYS = ("calc", "revision", "content_hash", "calc_file", "files")
 def _parsed_manifest(path: Path, data: bytes) -> dict:
     """A manifest's fields; ArchiveError when the file is not one (damaged or hand-made)."""
     try:
-        manifest = json.loads(data)
+        manifest = parse_json(data)
     except ValueError:
         manifest = None
     problem = manifest_problem(manifest)
@@ -112,32 +135,66 @@ def ordered_revisions(project_root: Path, calc_number: str) -> list[tuple[str, b
 
 
 def revision_history(project_root: Path, calc_number: str) -> list[dict]:
-    """Every issued revision, oldest first, for the site's revision table.
+    """Every revision folder of the calc, oldest first, for the site's revision table.
 
-    Each: rev, date, status ("issued" | "superseded"), superseded_by (rev or None),
-    description, prepared_by and checked_by (names), prepared_by_id, checked_by_id,
-    content_hash (SHA-256 of the calc file issued).
+    Each: rev, date, status ("issued" | "superseded" | "NOT VERIFIED: <reason>"),
+    superseded_by (rev or None), description, prepared_by and checked_by (names from the
+    project's roster by person id), prepared_by_id, checked_by_id, content_hash (SHA-256
+    of the calc file issued), verified (bool).  A revision counts as issued only when its
+    manifest signatures, sign-offs and recorded keys check (verify.revision_problem); one
+    that does not is never shown as issued, never supersedes and is never served.
     """
+    from .verify import revision_problem
     revs = ordered_revisions(project_root, calc_number)
-    successor = {(m.get("supersedes") or {}).get("revision"): rev for rev, _, m in revs}
-    history = []
-    for rev, _, manifest in revs:
-        prepared, checked = manifest.get("prepared_by") or {}, manifest.get("checked_by") or {}
-        history.append({
-            "rev": rev, "date": manifest.get("date", ""),
-            "status": "superseded" if rev in successor else "issued",
-            "superseded_by": successor.get(rev), "description": manifest.get("description", ""),
-            "prepared_by": prepared.get("name", ""), "prepared_by_id": prepared.get("id", ""),
-            "checked_by": checked.get("name", ""), "checked_by_id": checked.get("id", ""),
-            "content_hash": manifest.get("content_hash", "")})
-    return history
+    problems = {rev: revision_problem(revision_folder(project_root, calc_number, rev),
+                                      Path(project_root)) for rev, _, _ in revs}
+    successor = {(m.get("supersedes") or {}).get("revision"): rev for rev, _, m in revs
+                 if problems[rev] is None}
+    roster = _roster_names(project_root)
+    return [_history_row(rev, manifest, problems[rev], successor.get(rev), roster)
+            for rev, _, manifest in revs]
+
+
+def _roster_names(project_root: Path) -> dict[str, str]:
+    try:
+        return {pid: p["name"] for pid, p in projectfiles.people(project_root).items()}
+    except CalcsheafError:      # an unreadable roster: every revision fails its check anyway
+        return {}
+
+
+def _history_row(rev: str, manifest: dict, problem: str | None, successor: str | None,
+                 roster: dict[str, str]) -> dict:
+    prepared, checked = manifest.get("prepared_by") or {}, manifest.get("checked_by") or {}
+    verified = problem is None
+    pid, cid = str(prepared.get("id", "")), str(checked.get("id", ""))
+    return {
+        "rev": rev, "date": manifest.get("date", "") if verified else "",
+        "status": ("superseded" if successor else "issued") if verified
+        else f"NOT VERIFIED: {problem}",
+        "superseded_by": successor, "verified": verified,
+        "description": manifest.get("description", "") if verified else "",
+        "prepared_by": roster.get(pid, "") if verified else "", "prepared_by_id": pid,
+        "checked_by": roster.get(cid, "") if verified else "", "checked_by_id": cid,
+        "content_hash": manifest.get("content_hash", "")}
+
+
+def verified_history(project_root: Path, calc_number: str) -> list[dict]:
+    """revision_history without the revisions that do not verify."""
+    return [h for h in revision_history(project_root, calc_number) if h["verified"]]
 
 
 def issued_file(project_root: Path, calc_number: str, revision: str, rel: str) -> bytes | None:
     """A file of an issued revision, refused unless it matches its manifest; None when the
     manifest lists no such file."""
+    from .verify import revision_problem
     folder = revision_folder(project_root, calc_number, revision)
     _, manifest = _manifests(project_root, calc_number)[revision]
+    problem = revision_problem(folder, Path(project_root))
+    if problem:
+        raise ArchiveError(f"revision {revision} of calc {calc_number} does not verify "
+                           f"({problem}); it is never served as issued", file=folder,
+                           fix=f"run `calcsheaf verify {folder}` and restore the revision from "
+                               "the archive (or remove a folder that was never issued)")
     if rel not in manifest["files"]:
         return None
     path = folder / rel
@@ -186,11 +243,25 @@ def check_new_revision(project_root: Path, calc_number: str, revision: str) -> N
         raise ArchiveError(f"revision {revision} of calc {calc_number} is already issued and is "
                            "never overwritten", file=folder, key="--rev",
                            fix="issue the change as a new revision (e.g. the next letter)")
+    _refuse_unverified(project_root, calc_number)
     latest = latest_revision(project_root, calc_number)
     if latest is not None and identifiers.revision_key(revision) <= identifiers.revision_key(latest):
         raise ArchiveError(f"revision {revision} does not come after the latest issued revision "
                            f"{latest} of calc {calc_number}", key="--rev",
                            fix=f"revisions go forward: use {identifiers.next_revision(latest)}")
+
+
+def _refuse_unverified(project_root: Path, calc_number: str) -> None:
+    """A new revision supersedes the latest one, so every existing one must verify first."""
+    from .verify import revision_problem
+    for rev, _, _ in ordered_revisions(project_root, calc_number):
+        folder = revision_folder(project_root, calc_number, rev)
+        problem = revision_problem(folder, Path(project_root))
+        if problem:
+            raise ArchiveError(f"revision {rev} of calc {calc_number} does not verify "
+                               f"({problem}), so no revision can supersede it", file=folder,
+                               fix=f"run `calcsheaf verify {folder}`; restore it from the "
+                                   "archive, or remove a folder that was never issued")
 
 
 def _ready(project_root: Path, calc_number: str) -> tuple[Path, bytes, dict]:
@@ -249,11 +320,12 @@ def pending_history(project_root: Path, calc_number: str, revision: str, descrip
                     keys: dict[str, PersonKeys], digest: str) -> list[dict]:
     """The revision history as it will read once `revision` is issued (for its own sheets):
     the latest revision marked superseded by it, and it as the issued one."""
-    history = revision_history(project_root, calc_number)
+    history = verified_history(project_root, calc_number)
     if history:
         history[-1] = dict(history[-1], status="superseded", superseded_by=revision)
     history.append({
         "rev": revision, "date": today(), "status": "issued", "superseded_by": None,
+        "verified": True,
         "description": description,
         "prepared_by": keys["preparer"].name, "prepared_by_id": keys["preparer"].person_id,
         "checked_by": keys["checker"].name, "checked_by_id": keys["checker"].person_id,
@@ -276,10 +348,12 @@ def issue(project_root: Path, calc_number: str, revision: str, *, render: Render
     """
     from .keys import unlock as unlock_from_key_file
     project_root = Path(project_root)
+    refuse_links(project_root, calc_number)
     check_new_revision(project_root, calc_number, revision)
     base = calc_folder(project_root, calc_number)
     base.mkdir(parents=True, exist_ok=True)
     with _issue_lock(base):
+        refuse_links(project_root, calc_number)
         check_new_revision(project_root, calc_number, revision)
         calc_file, calc_bytes, status = _ready(project_root, calc_number)
         project_toml = projectfiles.project_file(project_root)
@@ -287,9 +361,8 @@ def issue(project_root: Path, calc_number: str, revision: str, *, render: Render
         listed = projectfiles.people_from_data(
             projectfiles.parse_toml_bytes(project_bytes, project_toml), project_toml)
         keys = _unlock_both(listed, status, unlock or unlock_from_key_file)
-        for leftover in base.glob(".staging-*"):
-            shutil.rmtree(leftover)      # from an interrupted issue; never published
-        staging = base / f".staging-{revision}"
+        _remove_own_leftovers(base)
+        staging = _new_staging(base, revision)
         try:
             inputs = _freeze_inputs(staging, calc_file.name, calc_bytes, project_bytes)
             history = pending_history(project_root, calc_number, revision, description, keys,
@@ -297,6 +370,7 @@ def issue(project_root: Path, calc_number: str, revision: str, *, render: Render
             facts = _stage(project_root, calc_number, revision, staging, inputs, status, keys,
                            render, history)
             facts["description"] = description
+            (staging / STAGING_MARKER).unlink()
             _seal(staging, facts, keys, _people_record(listed, keys), status["records"])
             final = revision_folder(project_root, calc_number, revision)
             os.rename(staging, final)
@@ -304,6 +378,31 @@ def issue(project_root: Path, calc_number: str, revision: str, *, render: Render
             if staging.exists():
                 shutil.rmtree(staging)
     return final
+
+
+STAGING_MARKER = ".calcsheaf-staging"
+
+
+def _remove_own_leftovers(base: Path) -> None:
+    """Remove the staging folders of interrupted issues: only real folders that carry the
+    marker an issue writes into its own staging folder (never a link, never another's)."""
+    for leftover in sorted(base.glob(".staging-*")):
+        marker = leftover / STAGING_MARKER
+        if leftover.is_dir() and not leftover.is_symlink() and marker.is_file() \
+                and not marker.is_symlink():
+            shutil.rmtree(leftover)      # from an interrupted issue; never published
+
+
+def _new_staging(base: Path, revision: str) -> Path:
+    """A new, empty staging folder of this issue, marked as made by it."""
+    staging = base / f".staging-{revision}"
+    try:
+        staging.mkdir()
+    except FileExistsError:
+        raise ArchiveError("a folder of this name, not made by an issue, is in the way",
+                           file=staging, fix="move it out of issued/, then issue again") from None
+    (staging / STAGING_MARKER).write_bytes(b"")
+    return staging
 
 
 def _freeze_inputs(staging: Path, calc_name: str, calc_bytes: bytes,

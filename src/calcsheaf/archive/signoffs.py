@@ -54,8 +54,9 @@ def signature_problem(record: dict, public_key: str) -> str | None:
     try:
         load_public_key(public_key).verify(unb64(record["signature"]),
                                            canonical_json(record["statement"]))
-    except (InvalidSignature, KeyError, ValueError, ArchiveError):
-        who = record.get("statement", {}).get("person", "?")
+    except (InvalidSignature, KeyError, ValueError, TypeError, AttributeError, ArchiveError):
+        statement = record.get("statement")
+        who = statement.get("person", "?") if isinstance(statement, dict) else "?"
         return f"signature does not verify with the public key listed for '{who}'"
     return None
 
@@ -199,6 +200,8 @@ def sign(project_root: Path, calc_number: str, role: str, keys: PersonKeys) -> d
     if role not in ROLES:
         raise ArchiveError(f"role '{role}' is not known", key="--as",
                            fix="use --as preparer or --as checker")
+    from .revisions import refuse_links
+    refuse_links(project_root, calc_number)
     listed = projectfiles.person(project_root, keys.person_id)
     if listed["public_key"] != keys.public_key_b64:
         raise ArchiveError(f"the key on this machine for '{keys.person_id}' is not the one "

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import json
 import math
+import os
 from pathlib import Path
 from typing import Callable
 
@@ -21,7 +22,7 @@ from calcsheaf.errors import ArchiveError, CalcsheafError, InputError
 from . import projectfiles
 from .canonical import sha256_bytes, sha256_file
 from .manifest import (MANIFEST, SIGNATURES, Row, check_manifest_signatures, compare_files,
-                       folder_files, read_manifest)
+                       folder_files, parse_json, read_manifest)
 from .signoffs import ROLES, signature_problem
 
 # (revision folder, manifest) -> {"results": dict, "files": {output-relative path: bytes}
@@ -43,31 +44,10 @@ def verify_revision(folder: Path, *, recompute: Recompute | None = None,
     `trust` (from `load_keyring`): the firm's keyring; each signer's key must be in it.
     """
     folder = Path(folder)
-    try:
-        manifest_bytes, manifest = read_manifest(folder)
-    except FileNotFoundError:
-        return [(MANIFEST, False, "missing: this is not an issued revision folder")]
-    except (ValueError, UnicodeDecodeError) as exc:
-        return [(MANIFEST, False, f"not valid JSON ({exc}): the manifest was edited")]
-    except OSError as exc:
-        return [(MANIFEST, False, f"cannot be read ({exc.strerror})")]
-    from .revisions import manifest_problem
-    problem = manifest_problem(manifest)
-    if problem:
-        return [(MANIFEST, False, f"is not a calcsheaf manifest ({problem}): the manifest was "
-                 "edited or made by hand")]
-    rows = compare_files(manifest["files"], folder_files(folder))
-    people, problem = _load_people(folder)
-    if problem:
-        return rows + [problem]
-    rows += _check_place(folder, manifest, project_root)
-    rows += _check_roles(manifest, people)
-    signatures, problem = _load_json(folder, SIGNATURES)
-    rows += [problem] if problem else check_manifest_signatures(manifest_bytes, signatures, people)
-    rows += _check_signoffs(folder, manifest, people)
-    rows += _check_frozen_roster(folder, people)
+    rows, manifest, people = _signed_rows(folder, project_root)
+    if manifest is None or people is None:
+        return rows
     if project_root is not None:
-        rows += _check_project_roster(project_root, people)
         rows += check_project_revisions(project_root, manifest["calc"], focus=folder.name)
     else:
         link = manifest.get("supersedes")
@@ -83,9 +63,74 @@ def verify_revision(folder: Path, *, recompute: Recompute | None = None,
     return rows
 
 
+def _signed_rows(folder: Path, project_root: Path | None) -> tuple[list[Row], dict | None,
+                                                                 dict | None]:
+    """The signature checks of a revision folder (no PDF signatures, no recompute): no
+    symbolic link on its path, file hashes, place, roles, both manifest signatures, both
+    sign-offs and the recorded keys against the frozen (and the project's) project.toml.
+    Returns (rows, manifest, people); manifest or people is None when the folder is too
+    damaged to go on."""
+    link = _linked_part(folder)
+    if link is not None:
+        return [("revision folder", False, f"{link} is a symbolic link: an issued revision is a "
+                 "real folder under its own calc (a link can make one calc's revision pass as "
+                 "another's); replace the link by the archived copy")], None, None
+    try:
+        manifest_bytes, manifest = read_manifest(folder)
+    except FileNotFoundError:
+        return [(MANIFEST, False, "missing: this is not an issued revision folder")], None, None
+    except (ValueError, UnicodeDecodeError) as exc:
+        return [(MANIFEST, False, f"not valid JSON ({exc}): the manifest was edited")], None, None
+    except OSError as exc:
+        return [(MANIFEST, False, f"cannot be read ({exc.strerror})")], None, None
+    from .revisions import manifest_problem
+    problem = manifest_problem(manifest)
+    if problem:
+        return [(MANIFEST, False, f"is not a calcsheaf manifest ({problem}): the manifest was "
+                 "edited or made by hand")], None, None
+    rows = compare_files(manifest["files"], folder_files(folder))
+    people, problem = _load_people(folder)
+    if problem:
+        return rows + [problem], manifest, None
+    rows += _check_place(folder, manifest, project_root)
+    rows += _check_roles(manifest, people)
+    signatures, problem = _load_json(folder, SIGNATURES)
+    rows += [problem] if problem else check_manifest_signatures(manifest_bytes, signatures, people)
+    rows += _check_signoffs(folder, manifest, people)
+    rows += _check_frozen_roster(folder, people)
+    if project_root is not None:
+        rows += _check_project_roster(project_root, people)
+    return rows, manifest, people
+
+
+def _linked_part(folder: Path) -> str | None:
+    """The first of the folder, its calc folder and issued/ that is a symbolic link; None
+    when there is none (links inside the folder fail as files by folder_files)."""
+    folder = Path(folder)
+    for part in (folder, folder.parent, folder.parent.parent):
+        if part.is_symlink():
+            return str(part)
+        if part.name == "issued":
+            break
+    return None
+
+
+def revision_problem(folder: Path, project_root: Path) -> str | None:
+    """Why a revision folder of a project must not count as issued (shown, served, or
+    superseding another); None when all its signature checks pass.  Fast: signatures and
+    hashes only, no PDF signature check and no recompute."""
+    rows, _, _ = _signed_rows(Path(folder), project_root)
+    failed = sorted((not item.startswith(("revision folder", "manifest signature", MANIFEST)), i)
+                    for i, (item, ok, _) in enumerate(rows) if not ok)
+    if not failed:
+        return None
+    item, _, detail = rows[failed[0][1]]   # a broken signature first: it quotes no edited text
+    return f"{item}: {detail}"
+
+
 def _load_json(folder: Path, rel: str, kind: type = dict) -> tuple:
     try:
-        data = json.loads((folder / rel).read_text(encoding="utf-8"))
+        data = parse_json((folder / rel).read_bytes())
     except FileNotFoundError:
         return None, (rel, False, "missing")
     except IsADirectoryError:
@@ -106,11 +151,12 @@ def _load_people(folder: Path) -> tuple:
         return None, problem
     for role in ROLES:
         who = people.get(role)
+        chain = who.get("chain", []) if isinstance(who, dict) else None
         if not isinstance(who, dict) or not all(isinstance(who.get(k), str) for k in PEOPLE_FIELDS) \
-                or not all(isinstance(c, str) for c in who.get("chain", []) or []):
+                or not isinstance(chain, list) or not all(isinstance(c, str) for c in chain):
             return None, ("record/people.json", False,
                           f"the {role} entry is missing or malformed (needs text id, name, "
-                          "public_key, certificate)")
+                          "public_key, certificate and a list of PEM texts as chain)")
     return {role: people[role] for role in ROLES}, None
 
 
@@ -119,8 +165,9 @@ def _check_place(folder: Path, manifest: dict, project_root: Path | None) -> lis
     (inside a project) the project: a folder copied under another calc or revision fails."""
     rows = [("revision folder", manifest["revision"] == folder.name,
              f"manifest revision {manifest['revision']}, folder {folder.name}")]
-    if folder.resolve().parent.parent.name == "issued":
-        calc_dir = folder.resolve().parent.name
+    given = Path(os.path.abspath(folder))    # as given: a linked folder is not its target's
+    if given.parent.parent.name == "issued":
+        calc_dir = given.parent.name
         rows.append(("calc folder", manifest["calc"] == calc_dir,
                      f"manifest calc {manifest['calc']}, folder issued/{calc_dir}"))
     calc_file = folder / manifest["calc_file"]
@@ -395,8 +442,13 @@ def check_project_revisions(project_root: Path, calc_number: str, *,
 
     With `focus` (one revision), only the links up to that revision are checked.
     """
-    from .revisions import ordered_revisions
+    from .revisions import linked_paths, ordered_revisions
     try:
+        links = linked_paths(project_root, calc_number)
+        if links:
+            return [(f"issued/{calc_number}", False, f"{link} is a symbolic link: an issued "
+                     "revision is a real folder under its own calc; replace the link by the "
+                     "archived copy") for link in links]
         revs = ordered_revisions(project_root, calc_number)
     except CalcsheafError as exc:
         return [(f"revision history of {calc_number}", False, f"{exc.file}: {exc.problem}")]
@@ -461,6 +513,10 @@ def verify_path(path: Path, *, recompute: Recompute | None = None,
                                                       project_root=root, trust=trust)))
     if project:
         issued = project / "issued"
+        if issued.is_symlink():
+            sections.append((str(issued), [("issued", False, "is a symbolic link: calcsheaf "
+                                            "never follows links in issued/; replace it by the "
+                                            "real folder")]))
         for calc in sorted(p.name for p in issued.iterdir() if p.is_dir()) if issued.is_dir() else []:
             rows = (check_project_revisions(project, calc) if identifiers.problem(
                 "calc number", calc) is None else
@@ -493,7 +549,7 @@ def trusted_keys(path: Path, trust: dict | None) -> str:
 
 def _project_of_revision(folder: Path) -> Path | None:
     """The project root when `folder` is PROJECT/issued/<CALC>/<REV>, else None."""
-    folder = folder.resolve()
+    folder = Path(os.path.abspath(folder))
     root = folder.parent.parent.parent
     if folder.parent.parent.name == "issued" and (root / "project.toml").is_file():
         return root

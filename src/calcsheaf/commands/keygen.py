@@ -7,6 +7,7 @@ import os
 from dataclasses import replace
 from pathlib import Path
 
+from calcsheaf import names
 from calcsheaf.archive import keys as K
 from calcsheaf.archive.roster import add_person
 from calcsheaf.archive.verify import fingerprint
@@ -18,6 +19,7 @@ def keygen(name: str, person_id: str, project: Path, *, role: str = "",
     """Create the person's key file in the user's config folder (or reuse the one there),
     then append the person's public key and certificate to PROJECT/project.toml."""
     project = Path(project)
+    _check_name(name)
     if not (project / "project.toml").is_file():
         raise ArchiveError("no project.toml here", file=project / "project.toml",
                            fix="give the project folder with --project")
@@ -39,6 +41,21 @@ def keygen(name: str, person_id: str, project: Path, *, role: str = "",
     print(("Added" if added else "Already listed:") +
           f" {person.name} ({person_id}) in {project / 'project.toml'}, public key {who}")
     return 0
+
+
+def _check_name(name: str) -> None:
+    """Refuse a name that is empty, too long for the certificate, or that names.name_problem
+    refuses (invisible or control characters, mixed scripts)."""
+    if not name.strip():
+        raise ArchiveError("the name is empty", key="--name",
+                           fix='give the person\'s full name, e.g. --name "Alice Able"')
+    if len(name) > names.MAX_LENGTH:
+        raise ArchiveError(f"the name is {len(name)} characters long; a certificate holds at "
+                           f"most {names.MAX_LENGTH}", key="--name",
+                           fix=f"shorten it to {names.MAX_LENGTH} characters or fewer")
+    problem = names.name_problem(name)
+    if problem:
+        raise ArchiveError(f"the name {name!r} {problem}", key="--name", fix=names.FIX)
 
 
 def _pkcs12_password(path: Path) -> str:

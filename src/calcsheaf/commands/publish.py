@@ -35,8 +35,8 @@ def with_status(report: CalcReport, project: ProjectInfo) -> tuple[CalcReport, l
     """The report with its status and revision from the issue records, plus history and sign-offs."""
     history = revision_history(project.root, report.number) if report.error is None else []
     signoff = signoff_status(project.root, report.number, report.input_hash) if report.error is None else {}
-    current = [h for h in history if h["content_hash"] == report.input_hash]
-    if current:
+    current = [h for h in history if h["verified"] and h["content_hash"] == report.input_hash]
+    if current:   # only a revision whose signatures verify counts as issued (and is served)
         report = replace(report, status=current[-1]["status"], revision=current[-1]["rev"])
     elif report.error is None:   # a draft: the revision it would become, from the records
         report = replace(report, revision=next_revision(history[-1]["rev"] if history else None))
