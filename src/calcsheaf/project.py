@@ -5,7 +5,7 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
-from . import identifiers, names
+from . import identifiers, person_names as names
 from .calcfile.loader import closest, did_you_mean
 from .calcfile.toml_source import read_toml
 from .errors import InputError, ProblemList

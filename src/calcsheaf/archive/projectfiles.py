@@ -9,7 +9,7 @@ from __future__ import annotations
 import tomllib
 from pathlib import Path
 
-from calcsheaf import identifiers, names
+from calcsheaf import identifiers, person_names as names
 from calcsheaf.errors import ArchiveError, InputError
 
 from .canonical import sha256_file

@@ -10,7 +10,6 @@ pyHanko are imported; the analysis stack only with `recompute`.
 
 from __future__ import annotations
 
-import json
 import math
 import os
 from pathlib import Path

@@ -7,7 +7,7 @@ import os
 from dataclasses import replace
 from pathlib import Path
 
-from calcsheaf import names
+from calcsheaf import person_names as names
 from calcsheaf.archive import keys as K
 from calcsheaf.archive.roster import add_person
 from calcsheaf.archive.verify import fingerprint
