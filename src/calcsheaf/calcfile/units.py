@@ -105,8 +105,10 @@ _TRAP_UNITS = {
 }
 
 
-# A plain ASCII decimal number: no '_' separators, no inf/nan, no other scripts' digits.
-_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
+# A plain ASCII decimal number: no '_' separators, no other scripts' digits (inf and nan
+# pass here, to be refused as not finite).
+_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?|[+-]?(?:inf|infinity|nan)",
+                     re.IGNORECASE)
 # Largest magnitude of a value in SI units: squares and fourth powers stay finite in floats.
 MAX_MAGNITUDE = 1e50
 # Largest power of one unit in a value's unit (kg**1000000000 overflowed).
