@@ -348,3 +348,89 @@ def test_a_template_linked_outside_after_check_is_refused_at_render(tmp_path):
     assert f"is a link to {outside}, outside the project" in refused.value.message
     with pytest.raises(BuildError, match="outside the project"):
         theme.static_assets(root)
+
+
+# ---- the cache never writes or reads through links (attack round 13, F4) -----------------
+SECRET = b"\x07" * 32
+
+
+def test_planted_temporary_file_links_are_not_followed(tmp_path):
+    """(a) links named `<entry>.entry.tmp-<pid>` beside an entry made `build` overwrite the file
+    they pointed at; the temporary file now has an unpredictable name made with O_EXCL."""
+    project = tmp_path / "p"
+    project.mkdir()
+    victim = tmp_path / "victim.txt"
+    victim.write_text("VICTIM DATA\n")
+    folder = project / cache_mod.FOLDER / "calc"
+    folder.mkdir(parents=True)
+    for pid in (1, os.getpid(), os.getpid() + 1):
+        (folder / f"e1{cache_mod.SUFFIX}.tmp-{pid}").symlink_to(victim)
+    cache = cache_mod.Cache(project, secret=SECRET)
+    cache.put("calc", "e1", {"a": 1}, {"f": b"bytes"})
+    assert victim.read_text() == "VICTIM DATA\n"
+    assert cache.get("calc", "e1") == ({"a": 1}, {"f": b"bytes"})
+    assert cache.notes == []
+
+
+def test_an_entry_that_is_a_link_is_not_read_and_is_replaced_not_followed(tmp_path):
+    project = tmp_path / "p"
+    outside = tmp_path / "outside"
+    outside.mkdir()
+    cache_mod.Cache(outside, secret=SECRET).put("calc", "e1", {"forged": True}, {})
+    real = outside / cache_mod.FOLDER / "calc" / f"e1{cache_mod.SUFFIX}"
+    before = real.read_bytes()
+    (project / cache_mod.FOLDER / "calc").mkdir(parents=True)
+    (project / cache_mod.FOLDER / "calc" / f"e1{cache_mod.SUFFIX}").symlink_to(real)
+    cache = cache_mod.Cache(project, secret=SECRET)
+    assert cache.get("calc", "e1") is None                   # authentic bytes, but behind a link
+    cache.put("calc", "e1", {"a": 2}, {})
+    assert real.read_bytes() == before
+    assert cache.get("calc", "e1") == ({"a": 2}, {})
+
+
+@pytest.mark.parametrize("linked", [cache_mod.FOLDER, f"{cache_mod.FOLDER}/calc"])
+def test_a_cache_folder_that_is_a_link_turns_the_cache_off(tmp_path, linked):
+    """(b) `.calcsheaf-cache` (or a subfolder) linked to an outside folder: build wrote 15 files
+    there.  Now the cache is off, with one note naming the link, and nothing is written."""
+    project = tmp_path / "p"
+    project.mkdir()
+    outside = tmp_path / "outside"
+    outside.mkdir()
+    (project / linked).parent.mkdir(parents=True, exist_ok=True)
+    (project / linked).symlink_to(outside)
+    cache = cache_mod.Cache(project, secret=SECRET)
+    cache.put("calc", "e1", {"a": 1}, {})
+    cache.put("equations", "e2", {"a": 1}, {})
+    assert cache.get("calc", "e1") is None and not cache.enabled
+    assert list(outside.iterdir()) == []
+    (note,) = cache.report()
+    assert note.startswith("the build cache is off:") and str(project / linked) in note
+    assert "is a symbolic link" in note and "Fix: delete it" in note
+
+
+def test_a_cache_folder_inside_a_linked_folder_resolving_elsewhere_is_refused(tmp_path):
+    project = tmp_path / "p"
+    project.mkdir()
+    elsewhere = tmp_path / "elsewhere"
+    (elsewhere / "calc").mkdir(parents=True)
+    (project / cache_mod.FOLDER).mkdir()
+    cache = cache_mod.Cache(project, secret=SECRET)
+    assert cache.enabled
+    # the real cache folder is fine; a project whose cache resolves elsewhere is not
+    inner = project / cache_mod.FOLDER
+    inner.rmdir()
+    inner.symlink_to(elsewhere)
+    assert not cache_mod.Cache(project, secret=SECRET).enabled
+    assert list((elsewhere / "calc").iterdir()) == []
+
+
+def test_build_with_a_linked_cache_folder_writes_nothing_outside(tmp_path, capsys):
+    project = make_project(tmp_path / "p")
+    outside = tmp_path / "outside"
+    outside.mkdir()
+    (project / cache_mod.FOLDER).symlink_to(outside)
+    assert main(["build", str(project)]) == 0
+    err = capsys.readouterr().err
+    assert err.count("the build cache is off") == 1 and "is a symbolic link" in err
+    assert list(outside.iterdir()) == []
+    assert x_static(project / "_site") == pytest.approx(10 * 9.80665 / 4000 * 1000, rel=1e-9)

@@ -20,7 +20,7 @@ import pytest
 from calcsheaf import cli
 from calcsheaf.commands.build import write_site
 from calcsheaf.errors import BuildError
-from calcsheaf.outdir import MARKER, check_output_folder, is_calcsheaf_output
+from calcsheaf.outdir import MARKER, MARKER_TEXT, check_output_folder, is_calcsheaf_output
 
 FILES = {"index.html": b"<p>site</p>\n", "C-1/results.json": b"{}\n"}
 PROJECT_TOML = '[project]\nnumber = "P-1"\nname = "Output folder tests"\n'
@@ -73,19 +73,60 @@ def test_a_folder_with_the_users_files_is_refused_and_kept(tmp_path):
     with pytest.raises(BuildError) as info:
         write_site(target, FILES)
     assert "already holds 1 item(s) that calcsheaf did not write" in info.value.problem
-    assert "Fix: give --out a new or empty folder" in info.value.message
+    assert "Fix: choose a new or empty folder with --out" in info.value.message
     assert tree(target) == before
     assert [p.name for p in tmp_path.iterdir()] == ["Documents"], "a temporary folder was left"
 
 
-def test_a_site_written_before_the_marker_is_recognised_by_its_sha256sums(tmp_path):
-    target = tmp_path / "site"
-    (target / "C-1").mkdir(parents=True)
-    (target / "C-1" / "index.html").write_bytes(b"old")
-    (target / "SHA256SUMS").write_text(f"{hashlib.sha256(b'old').hexdigest()}  C-1/index.html\n")
-    assert is_calcsheaf_output(target)
-    (target / "notes.txt").write_text("not listed: someone else's file\n")
+def test_a_users_folder_with_an_ordinary_sha256sums_is_refused_and_kept(tmp_path):
+    """Attack round 13, F2: a download folder whose SHA256SUMS (made by `sha256sum`) lists
+    exactly its files was taken for an old calcsheaf site and deleted."""
+    target = tmp_path / "dl"
+    target.mkdir()
+    files = {"distro.iso": b"my precious iso\n", "notes.txt": b"notes\n"}
+    for name, data in files.items():
+        (target / name).write_bytes(data)
+    (target / "SHA256SUMS").write_text("".join(f"{hashlib.sha256(d).hexdigest()}  {n}\n"
+                                               for n, d in sorted(files.items())))
+    before = tree(target)
     assert not is_calcsheaf_output(target)
+    with pytest.raises(BuildError) as info:
+        write_site(target, FILES)
+    assert str(target) in info.value.message
+    assert "choose a new or empty folder" in info.value.message
+    assert "delete this folder yourself" in info.value.message
+    assert tree(target) == before
+
+
+@pytest.mark.parametrize("content", [b"", b"mine\n", MARKER_TEXT + b"extra", MARKER_TEXT.rstrip()])
+def test_a_marker_whose_content_is_not_calcsheafs_is_refused(tmp_path, content):
+    target = tmp_path / "site"
+    target.mkdir()
+    (target / MARKER).write_bytes(content)
+    (target / "keep.txt").write_text("keep")
+    with pytest.raises(BuildError, match="did not write"):
+        write_site(target, FILES)
+    assert (target / "keep.txt").read_text() == "keep"
+
+
+def test_a_marker_that_is_a_link_is_refused(tmp_path):
+    real = tmp_path / "real-marker"
+    real.write_bytes(MARKER_TEXT)
+    target = tmp_path / "site"
+    target.mkdir()
+    (target / MARKER).symlink_to(real)
+    assert not is_calcsheaf_output(target)
+
+
+def test_the_leftover_temporary_folder_has_an_unpredictable_name(tmp_path, monkeypatch):
+    """Attack round 13, L2: links `.site.tmp-<pid>` planted for every pid blocked every build."""
+    target = tmp_path / "site"
+    outside = tmp_path / "outside"
+    outside.mkdir()
+    (tmp_path / f".site.tmp-{os.getpid()}").symlink_to(outside)
+    write_site(target, FILES)
+    assert sorted(tree(target)) == sorted([*FILES, MARKER, "SHA256SUMS"])
+    assert list(outside.iterdir()) == []
 
 
 def test_a_symlink_or_a_file_as_output_is_refused(tmp_path):
@@ -168,6 +209,18 @@ def test_selftest_into_a_folder_holding_other_files_is_refused_before_running(tm
     assert code == 1 and "calcsheaf did not write" in text and "Fix:" in text
     assert "PASS" not in text, "the suite ran before the folder was checked"
     assert (out / "keep.txt").read_text() == "keep"
+
+
+def test_selftest_into_a_folder_with_an_ordinary_sha256sums_is_refused(tmp_path):
+    """Attack round 13, F2, for `selftest --out`."""
+    out = tmp_path / "st"
+    out.mkdir()
+    (out / "thesis.tex").write_text("keep")
+    (out / "SHA256SUMS").write_text(f"{hashlib.sha256(b'keep').hexdigest()}  thesis.tex\n")
+    code, text = run("selftest", "--out", str(out))
+    assert code == 1 and str(out) in text and "delete this folder yourself" in text
+    assert "PASS" not in text
+    assert (out / "thesis.tex").read_text() == "keep"
 
 
 @pytest.mark.parametrize("code, words", [

@@ -17,6 +17,11 @@ neither run code nor be forged:
 
 When the secret cannot be read or made, the cache is off (every calc is
 analysed afresh) and the reason is one of the notes.
+
+Links are never followed: the cache is off (with a note) when its folder or a
+subfolder is a symbolic link or resolves outside the project; entries are read
+with O_NOFOLLOW, and written to a temporary file made with O_EXCL under an
+unpredictable name (mkstemp in the entry's folder), then renamed into place.
 """
 
 from __future__ import annotations
@@ -27,6 +32,7 @@ import json
 import os
 import secrets
 import stat
+import tempfile
 from pathlib import Path
 
 from . import settings
@@ -124,7 +130,8 @@ class Cache:
     """
 
     def __init__(self, project_root: Path, secret: bytes | None = None) -> None:
-        self.folder = Path(project_root) / FOLDER
+        self.root = Path(project_root)
+        self.folder = self.root / FOLDER
         self.notes: list[str] = []
         self.rejected: list[Path] = []
         self._secret = secret
@@ -136,6 +143,9 @@ class Cache:
                                   "and keep the file private to you (remove it to have a new one "
                                   f"made, mode 0600), or set {KEY_FILE_ENV} to a file of your own")
 
+        if self.enabled:
+            self._place_is_safe(self.folder)
+
     @property
     def enabled(self) -> bool:
         return self._secret is not None
@@ -143,17 +153,48 @@ class Cache:
     def _path(self, kind: str, entry: str) -> Path:
         return self.folder / kind / f"{entry}{SUFFIX}"
 
+    def _place_is_safe(self, folder: Path) -> bool:
+        """False, and the cache turned off with a note, when `folder` (the cache folder or one
+        of its subfolders) is a link, not a folder, or resolves to anywhere but its own place
+        in the project.  A folder that does not exist yet is safe."""
+        if not folder.is_symlink() and not folder.exists():
+            return True
+        expected = self.root.resolve() / folder.relative_to(self.root)
+        if folder.is_symlink():
+            why = "is a symbolic link"
+        elif not folder.is_dir():
+            why = "is not a folder"
+        elif folder.resolve() != expected:
+            why = f"resolves to {folder.resolve()}, outside its place in the project"
+        else:
+            return True
+        self._secret = None
+        self.notes.append(f"the build cache is off: {folder} {why}, and the cache never writes "
+                          "or reads through links. Fix: delete it (the cache is safe to delete; "
+                          "a real folder is made on the next build)")
+        return False
+
+    def _entry_folder(self, kind: str, create: bool) -> Path | None:
+        """The folder of `kind`'s entries (made when `create`), or None when it is not safe."""
+        sub = self.folder / kind
+        for folder in (self.folder, sub):
+            if create and not folder.is_symlink():
+                folder.mkdir(mode=0o700, exist_ok=True)
+            if not self._place_is_safe(folder):
+                return None
+        return sub
+
     def _mac(self, kind: str, entry: str, body: bytes) -> bytes:
         label = f"{kind}\0{entry}\0".encode()
         return hmac.new(self._secret, _MAGIC + label + body, hashlib.sha256).digest()
 
     def get(self, kind: str, entry: str) -> tuple[dict, dict[str, bytes]] | None:
         """(meta, files) of an authentic entry; None when missing, unreadable or not authentic."""
-        if not self.enabled:
+        if not self.enabled or self._entry_folder(kind, create=False) is None:
             return None
         path = self._path(kind, entry)
         try:
-            raw = path.read_bytes()
+            raw = _read_no_follow(path)
         except OSError:
             return None
         head, mac, body = raw[:len(_MAGIC)], raw[len(_MAGIC):len(_MAGIC) + _MAC_BYTES], \
@@ -173,10 +214,9 @@ class Cache:
         body = _pack(meta, files)
         path = self._path(kind, entry)
         try:
-            path.parent.mkdir(parents=True, exist_ok=True)
-            temp = path.with_name(f"{path.name}.tmp-{os.getpid()}")
-            temp.write_bytes(_MAGIC + self._mac(kind, entry, body) + body)
-            os.replace(temp, path)
+            if self._entry_folder(kind, create=True) is None:
+                return
+            _write_new(path, _MAGIC + self._mac(kind, entry, body) + body)
         except OSError:
             pass
 
@@ -188,6 +228,34 @@ class Cache:
                          f"of {self.folder} that failed authentication (made by another user or "
                          "altered); they were rebuilt from the inputs")
         return notes
+
+
+def _read_no_follow(path: Path) -> bytes:
+    """The bytes of the regular file `path`; OSError when it is a link or not a regular file."""
+    fd = os.open(path, os.O_RDONLY | os.O_NOFOLLOW)
+    try:
+        if not stat.S_ISREG(os.fstat(fd).st_mode):
+            raise OSError(f"{path} is not a regular file")
+        chunks = []
+        while chunk := os.read(fd, 1 << 20):
+            chunks.append(chunk)
+        return b"".join(chunks)
+    finally:
+        os.close(fd)
+
+
+def _write_new(path: Path, data: bytes) -> None:
+    """Write `data` to a fresh temporary file beside `path` (O_EXCL, unpredictable name, so a
+    planted link is never followed), then rename it over `path` (a link there is replaced,
+    not followed)."""
+    fd, temp = tempfile.mkstemp(prefix=f"{path.name}.tmp-", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.replace(temp, path)
+    except BaseException:
+        Path(temp).unlink(missing_ok=True)
+        raise
 
 
 def _pack(meta: dict, files: dict[str, bytes]) -> bytes:

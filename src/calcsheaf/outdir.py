@@ -2,9 +2,10 @@
 
 `build --out DIR` and `selftest --out DIR` swap a freshly written folder in
 place of DIR, which discards what DIR held.  So DIR must be new, empty, or
-marked as a calcsheaf output by the marker file MARKER (written into every
-output folder and listed in its SHA256SUMS); a site written before the marker
-existed is recognised by a SHA256SUMS that lists exactly its files.  An output
+marked as a calcsheaf output by the marker file MARKER, whose content is
+exactly MARKER_TEXT (written into every output folder and listed in its
+SHA256SUMS).  Nothing else is taken for an output: a folder that merely holds
+a SHA256SUMS is a user's folder, and is refused.  An output
 folder may never be, contain, or sit inside the project's sources.
 """
 
@@ -18,7 +19,8 @@ MARKER = ".calcsheaf-output"
 MARKER_TEXT = b"calcsheaf output folder: replaced as a whole by the next build; do not keep files here\n"
 # Inside a project: what a build reads, or keeps between builds.
 SOURCES = ("project.toml", "calcs", "signoffs", "issued", "templates", ".calcsheaf-cache")
-_FIX = "give --out a new or empty folder (or one calcsheaf wrote before), or move those files away yourself"
+_FIX = ("choose a new or empty folder with --out (or one calcsheaf wrote, which holds the "
+        f"{MARKER} file), or delete this folder yourself if its contents are not needed")
 
 
 def check_output_folder(target: Path, project_root: Path | None = None) -> None:
@@ -44,31 +46,26 @@ def check_output_folder(target: Path, project_root: Path | None = None) -> None:
 
 
 def is_calcsheaf_output(folder: Path) -> bool:
-    """True for an empty folder, a folder holding the marker file, or a pre-marker site."""
+    """True for an empty folder, or one holding the marker file with calcsheaf's exact content."""
     try:
         entries = list(folder.iterdir())
     except OSError:
         return False
     if not entries:
         return True
+    return has_marker(folder)
+
+
+def has_marker(folder: Path) -> bool:
+    """True when `folder` holds the marker as a plain file (not a link) with exactly MARKER_TEXT."""
     marker = folder / MARKER
-    if marker.is_file() and not marker.is_symlink():
-        return True
-    return _listed_site(folder)
-
-
-def _listed_site(folder: Path) -> bool:
-    """A site written before the marker: SHA256SUMS lists exactly the files under it."""
-    sums = folder / "SHA256SUMS"
-    if sums.is_symlink() or not sums.is_file():
+    if marker.is_symlink() or not marker.is_file():
         return False
     try:
-        listed = {line.partition("  ")[2] for line in sums.read_text(encoding="utf-8").splitlines()}
-        actual = {p.relative_to(folder).as_posix() for p in folder.rglob("*")
-                  if p.is_file() or p.is_symlink()}
-    except (OSError, UnicodeDecodeError):
+        with open(marker, "rb") as fh:
+            return fh.read(len(MARKER_TEXT) + 1) == MARKER_TEXT
+    except OSError:
         return False
-    return actual == listed | {"SHA256SUMS"}
 
 
 def _check_apart_from_sources(target: Path, root: Path) -> None:
@@ -90,4 +87,4 @@ def _check_apart_from_sources(target: Path, root: Path) -> None:
 def is_leftover(folder: Path) -> bool:
     """True for a temporary or old folder of an interrupted write (it holds the marker, or nothing)."""
     return folder.is_dir() and not folder.is_symlink() and (
-        (folder / MARKER).is_file() or not any(folder.iterdir()))
+        has_marker(folder) or not any(folder.iterdir()))

@@ -193,6 +193,9 @@ def ascii_fix(char: str) -> str:
     """What to type instead of the non-ASCII `char`."""
     if char in _LOOKALIKES:
         return f"write {_LOOKALIKES[char]} instead"
+    if unicodedata.category(char) == "Nd":       # a digit of another script: say its value
+        return (f"type the plain ASCII digit '{unicodedata.digit(char)}' (this character is the "
+                f"digit {unicodedata.digit(char)} of another script, whatever it looks like)")
     folded = unicodedata.normalize("NFKC", char)
     if folded != char and folded.isascii() and folded.isprintable():
         return f"type it as the plain ASCII '{folded}' (it looks alike but is another character)"

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import re
 from functools import lru_cache
 
 import pint
@@ -104,8 +105,22 @@ _TRAP_UNITS = {
 }
 
 
+# A plain ASCII decimal number: no '_' separators, no other scripts' digits (inf and nan
+# pass here, to be refused as not finite).
+_NUMBER = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?|[+-]?(?:inf|infinity|nan)",
+                     re.IGNORECASE)
+# Largest magnitude of a value in SI units: squares and fourth powers stay finite in floats.
+MAX_MAGNITUDE = 1e50
+# Largest power of one unit in a value's unit (kg**1000000000 overflowed).
+MAX_UNIT_POWER = 12
+
+
 def parse_quantity(text, where: Where = Where()) -> pint.Quantity:
-    """A value with a unit from text such as '1.2 MN/m' or '0 m/s'."""
+    """A value with a unit from text such as '1.2 MN/m' or '0 m/s'.
+
+    The number is plain ASCII (a Bengali '৪', which looks like 8 but is 4, or a
+    full-width digit would be read silently otherwise), without '_' separators,
+    and its size in SI units is at most MAX_MAGNITUDE."""
     if isinstance(text, bool) or not isinstance(text, (str, int, float)):
         raise UnitError(f"expected a value with a unit as text, got {type(text).__name__}",
                         file=where.file, line=where.line, key=where.key,
@@ -113,19 +128,51 @@ def parse_quantity(text, where: Where = Where()) -> pint.Quantity:
     if isinstance(text, (int, float)):
         quantity = Quantity(text, ureg.dimensionless)
     else:
-        number, _, unit_text = text.strip().partition(" ")
-        try:
-            value = float(number)
-        except ValueError:
-            raise UnitError(f"cannot read '{text}' as a number followed by a unit",
-                            file=where.file, line=where.line, key=where.key,
-                            fix='write the number first, then the unit, e.g. "1.2 MN/m"') from None
-        unit = parse_unit(unit_text.strip(), where)
-        quantity = Quantity(value, unit)
+        number, _, unit_text = text.strip(" ").partition(" ")
+        _check_number(text, number, where)
+        unit = parse_unit(unit_text.strip(" "), where)
+        quantity = Quantity(float(number), unit)
+    _check_size(text, quantity, where)
+    return quantity
+
+
+def _check_number(text: str, number: str, where: Where) -> None:
+    """Refuse a number that is not plain ASCII decimal (naming the odd character)."""
+    odd = next((c for c in number if not c.isascii()), None)
+    if odd is not None:
+        raise UnitError(f"{describe_character(odd)} is not allowed in the number of '{text}' "
+                        "(numbers are read in plain ASCII digits only)", file=where.file,
+                        line=where.line, key=where.key, fix=ascii_fix(odd))
+    if "_" in number:
+        raise UnitError(f"'_' inside the number '{number}' of '{text}' is not allowed (it would "
+                        f"be read silently as {number.replace('_', '')})", file=where.file,
+                        line=where.line, key=where.key,
+                        fix=f"write the digits without '_', e.g. {number.replace('_', '')}")
+    if not _NUMBER.fullmatch(number):
+        raise UnitError(f"cannot read '{text}' as a number followed by a unit",
+                        file=where.file, line=where.line, key=where.key,
+                        fix='write the number first, then the unit, e.g. "1.2 MN/m"')
+
+
+def _check_size(text, quantity: pint.Quantity, where: Where) -> None:
+    """Refuse a value that is not finite, has a unit power beyond MAX_UNIT_POWER, or is
+    larger than MAX_MAGNITUDE in SI units (the analysis would overflow)."""
     if not math.isfinite(quantity.magnitude):
         raise UnitError(f"value '{text}' is not finite", file=where.file, line=where.line,
                         key=where.key, fix="give a finite number")
-    return quantity
+    power = max((abs(float(p)) for p in quantity.units._units.values()), default=0.0)
+    if power > MAX_UNIT_POWER:
+        raise UnitError(f"the unit of '{text}' has a power of {power:g}, beyond the "
+                        f"{MAX_UNIT_POWER} calcsheaf accepts", file=where.file, line=where.line,
+                        key=where.key, fix="check the unit's exponent (e.g. kN/m, m/s^2)")
+    try:
+        si = float(quantity.to_base_units().magnitude)
+    except OverflowError:
+        si = math.inf
+    if not abs(si) <= MAX_MAGNITUDE:
+        raise UnitError(f"value '{text}' is too large: beyond {MAX_MAGNITUDE:g} in SI units, "
+                        "where the analysis would overflow", file=where.file, line=where.line,
+                        key=where.key, fix="check the number and its exponent (e.g. 1e5, not 1e308)")
 
 
 def to_si(quantity: pint.Quantity) -> float:

@@ -19,6 +19,7 @@ from __future__ import annotations
 import hashlib
 import os
 import shutil
+import tempfile
 import sys
 import time
 from pathlib import Path
@@ -171,9 +172,10 @@ def write_site(target: Path, files: dict[str, bytes], project_root: Path | None 
     write (disk full, read-only folder) removes its temporary folder and leaves `target` as it was."""
     check_output_folder(target, project_root)
     _clean_leftovers(target)
-    temp = target.parent / f".{target.name}.tmp-{os.getpid()}"
+    # An unpredictable name made with O_EXCL: a link planted beside the target is never followed.
+    temp = Path(tempfile.mkdtemp(prefix=f".{target.name}.tmp-", dir=target.parent))
     try:
-        temp.mkdir()
+        os.chmod(temp, 0o777 & ~_umask())             # mkdtemp makes 0700; a site is shared
         (temp / MARKER).write_bytes(MARKER_TEXT)      # first: a leftover is recognisably ours
         for rel in sorted(files):
             path = temp / rel
@@ -193,8 +195,8 @@ def _swap_in(temp: Path, target: Path) -> None:
         shutil.rmtree(temp)
         return
     if target.exists():
-        old = target.parent / f".{target.name}.old-{os.getpid()}"
-        os.rename(target, old)
+        old = Path(tempfile.mkdtemp(prefix=f".{target.name}.old-", dir=target.parent))
+        os.rename(target, old)               # replaces the empty folder just made
         try:
             os.rename(temp, target)
         except OSError:                      # put the previous output back before reporting
@@ -204,6 +206,12 @@ def _swap_in(temp: Path, target: Path) -> None:
         shutil.rmtree(old)
     else:
         os.rename(temp, target)
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
 
 
 def sha256sums(files: dict[str, bytes]) -> bytes:
