@@ -19,6 +19,7 @@ from calcsheaf import cli
 from calcsheaf.commands import preview as preview_module
 from calcsheaf.commands.preview import _loopback, preview
 from calcsheaf.errors import UsageError
+from calcsheaf.outdir import MARKER, MARKER_TEXT
 
 PROJECT_TOML = '[project]\nnumber = "P-1"\nname = "Preview tests"\n'
 
@@ -48,7 +49,7 @@ def served(tmp_path, monkeypatch):
     (site / "index.html").write_text("<p>index</p>")
     (site / "C-1" / "index.html").write_text("<p>calc</p>")
     (site / "static" / "theme.css").write_text("body {}")
-    (site / ".calcsheaf-output").write_text("marker")
+    (site / MARKER).write_bytes(MARKER_TEXT)       # a folder calcsheaf wrote
     builds = []
 
     def fake_build(project_root, out=None, err=None):
