@@ -18,7 +18,7 @@ from pathlib import Path
 import pytest
 
 from calcsheaf import cli
-from calcsheaf.commands.build import write_site
+from calcsheaf.outdir import write_site
 from calcsheaf.errors import BuildError
 from calcsheaf.outdir import MARKER, MARKER_TEXT, check_output_folder, is_calcsheaf_output
 

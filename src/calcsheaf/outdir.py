@@ -11,6 +11,10 @@ folder may never be, contain, or sit inside the project's sources.
 
 from __future__ import annotations
 
+import hashlib
+import os
+import shutil
+import tempfile
 from pathlib import Path
 
 from .errors import BuildError
@@ -88,3 +92,84 @@ def is_leftover(folder: Path) -> bool:
     """True for a temporary or old folder of an interrupted write (it holds the marker, or nothing)."""
     return folder.is_dir() and not folder.is_symlink() and (
         has_marker(folder) or not any(folder.iterdir()))
+
+
+def write_site(target: Path, files: dict[str, bytes], project_root: Path | None = None) -> None:
+    """Write `files` (relative path -> bytes) plus the marker and SHA256SUMS as the new `target`,
+    atomically.  `target` must be new, empty or a calcsheaf output (see outdir); a failed
+    write (disk full, read-only folder) removes its temporary folder and leaves `target` as it was."""
+    check_output_folder(target, project_root)
+    _clean_leftovers(target)
+    # An unpredictable name made with O_EXCL: a link planted beside the target is never followed.
+    temp = Path(tempfile.mkdtemp(prefix=f".{target.name}.tmp-", dir=target.parent))
+    try:
+        os.chmod(temp, 0o777 & ~_umask())             # mkdtemp makes 0700; a site is shared
+        (temp / MARKER).write_bytes(MARKER_TEXT)      # first: a leftover is recognisably ours
+        for rel in sorted(files):
+            path = temp / rel
+            path.parent.mkdir(parents=True, exist_ok=True)
+            path.write_bytes(files[rel])
+        (temp / "SHA256SUMS").write_bytes(sha256sums({**files, MARKER: MARKER_TEXT}))
+        _fsync_tree(temp)
+    except BaseException:
+        shutil.rmtree(temp, ignore_errors=True)
+        raise
+    _swap_in(temp, target)
+
+
+def _swap_in(temp: Path, target: Path) -> None:
+    """Replace `target` by the complete folder `temp` (exchange, or two renames)."""
+    if target.exists() and _exchange(temp, target):
+        shutil.rmtree(temp)
+        return
+    if target.exists():
+        old = Path(tempfile.mkdtemp(prefix=f".{target.name}.old-", dir=target.parent))
+        os.rename(target, old)               # replaces the empty folder just made
+        try:
+            os.rename(temp, target)
+        except OSError:                      # put the previous output back before reporting
+            os.rename(old, target)
+            shutil.rmtree(temp, ignore_errors=True)
+            raise
+        shutil.rmtree(old)
+    else:
+        os.rename(temp, target)
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def sha256sums(files: dict[str, bytes]) -> bytes:
+    """`sha256sum -c` compatible listing of every file, sorted by path."""
+    lines = [f"{hashlib.sha256(files[rel]).hexdigest()}  {rel}\n" for rel in sorted(files)]
+    return "".join(lines).encode()
+
+
+def _clean_leftovers(target: Path) -> None:
+    """Remove the temporary and old folders of interrupted writes (only folders marked as ours)."""
+    for stale in sorted(target.parent.glob(f".{target.name}.tmp-*")) + \
+            sorted(target.parent.glob(f".{target.name}.old-*")):
+        if is_leftover(stale):
+            shutil.rmtree(stale, ignore_errors=True)
+
+
+def _fsync_tree(folder: Path) -> None:
+    for path in sorted(folder.rglob("*")):
+        if path.is_file():
+            with open(path, "rb") as fh:
+                os.fsync(fh.fileno())
+
+
+def _exchange(a: Path, b: Path) -> bool:
+    """Swap two folders in one step (Linux renameat2); False when unavailable."""
+    try:
+        import ctypes
+        libc = ctypes.CDLL(None, use_errno=True)
+        renameat2 = libc.renameat2
+    except (OSError, AttributeError):
+        return False
+    AT_FDCWD, RENAME_EXCHANGE = -100, 2
+    return renameat2(AT_FDCWD, os.fsencode(a), AT_FDCWD, os.fsencode(b), RENAME_EXCHANGE) == 0

@@ -119,15 +119,17 @@ def calc_key(source: CalcSource, records: str, date: str) -> str | None:
     return key("calc", source.path.name, source.raw, records, date)
 
 
+RECORDS = ("project.toml", "signoffs", "issued", "templates")   # what every calc page reads
+
+
 def records_digest(root: Path) -> str:
     """SHA-256 over the project's records (project.toml, sign-offs, issued, templates)."""
     from .cache import tree_digest
-    from .commands import publish
-    return tree_digest(root, publish.RECORDS)
+    return tree_digest(root, RECORDS)
 
 
 def build_calcs(root: Path, project: ProjectInfo, cache, jobs: int | None, progress,
-                date: str, sources: list[CalcSource] | None = None,
+                date: str, worker, render, sources: list[CalcSource] | None = None,
                 records: str | None = None) -> list[tuple[CalcReport, dict[str, bytes]]]:
     """(report, site files) of every calc; with a cache, only calcs whose inputs changed are redone.
 
@@ -136,9 +138,12 @@ def build_calcs(root: Path, project: ProjectInfo, cache, jobs: int | None, progr
     `issue` and `verify --recompute` need.  `sources`: the calc files as read once
     by the caller (default: read now); `records`: records_digest(root) taken
     before anything else was read (default: now).  Entries are stored only when
-    the records did not change while the calcs were built.
+    the records did not change while the calcs were built.  `worker(source, *,
+    project, date, use_cache)` analyses and renders one calc in its isolated process
+    (the site writer's, passed in so that this layer never imports it);
+    `render(report, project, date, use_cache)` renders a calc whose page the worker
+    could not make (a failed calc's page).
     """
-    from .commands import publish
     from .report_codec import NotStorable, decode_report, encode_report
 
     sources = read_sources(root) if sources is None else sources
@@ -146,7 +151,7 @@ def build_calcs(root: Path, project: ProjectInfo, cache, jobs: int | None, progr
     keys = [calc_key(s, records, date) if cache is not None else None for s in sources]
     entries = [_cached(cache, k, s, decode_report) for k, s in zip(keys, sources)]
     todo = [i for i, e in enumerate(entries) if e is None]
-    work = functools.partial(publish.analyse_and_render, project=project, date=date,
+    work = functools.partial(worker, project=project, date=date,
                              use_cache=cache is not None)
     fresh = run_isolated(work, [sources[i] for i in todo], jobs or default_jobs(),
                          lambda source, error: (failed_source(source, error), None, []), progress)
@@ -155,7 +160,7 @@ def build_calcs(root: Path, project: ProjectInfo, cache, jobs: int | None, progr
         if cache is not None:
             cache.rejected.extend(Path(p) for p in rejected)
         if files is None:
-            report, files = publish.render_entry(report, project, date, use_cache=cache is not None)
+            report, files = render(report, project, date, use_cache=cache is not None)
         entries[i] = (report, files)
         if stable and keys[i] is not None and not _stopped(report):
             try:

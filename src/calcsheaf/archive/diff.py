@@ -21,7 +21,7 @@ from calcsheaf.errors import ArchiveError
 
 from . import projectfiles
 from .manifest import MANIFEST
-from .revisions import ordered_revisions, revision_folder
+from .layout import ordered_revisions, revision_folder
 
 CURRENT = "current"
 SECTIONS = ("inputs", "assumptions", "references", "results", "criteria")

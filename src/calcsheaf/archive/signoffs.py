@@ -108,7 +108,7 @@ def history_point(project_root: Path, calc_number: str, content_hash: str) -> se
     first issue), and for the content of the latest revision itself, the manifest it
     superseded (the sign-offs that issued it).
     """
-    from .revisions import ordered_revisions
+    from .layout import ordered_revisions
     revs = ordered_revisions(project_root, calc_number)
     if not revs:
         return {""}
@@ -200,7 +200,7 @@ def sign(project_root: Path, calc_number: str, role: str, keys: PersonKeys) -> d
     if role not in ROLES:
         raise ArchiveError(f"role '{role}' is not known", key="--as",
                            fix="use --as preparer or --as checker")
-    from .revisions import refuse_links
+    from .layout import refuse_links
     refuse_links(project_root, calc_number)
     listed = projectfiles.person(project_root, keys.person_id)
     if listed["public_key"] != keys.public_key_b64:
@@ -226,7 +226,7 @@ def sign(project_root: Path, calc_number: str, role: str, keys: PersonKeys) -> d
 
 def latest_manifest_sha(project_root: Path, calc_number: str) -> str:
     """SHA-256 of the latest issued revision's MANIFEST.json ("" before the first issue)."""
-    from .revisions import ordered_revisions
+    from .layout import ordered_revisions
     revs = ordered_revisions(project_root, calc_number)
     return sha256_bytes(revs[-1][1]) if revs else ""
 

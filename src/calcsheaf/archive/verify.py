@@ -82,7 +82,7 @@ def _signed_rows(folder: Path, project_root: Path | None) -> tuple[list[Row], di
         return [(MANIFEST, False, f"not valid JSON ({exc}): the manifest was edited")], None, None
     except OSError as exc:
         return [(MANIFEST, False, f"cannot be read ({exc.strerror})")], None, None
-    from .revisions import manifest_problem
+    from .layout import manifest_problem
     problem = manifest_problem(manifest)
     if problem:
         return [(MANIFEST, False, f"is not a calcsheaf manifest ({problem}): the manifest was "
@@ -441,7 +441,7 @@ def check_project_revisions(project_root: Path, calc_number: str, *,
 
     With `focus` (one revision), only the links up to that revision are checked.
     """
-    from .revisions import linked_paths, ordered_revisions
+    from .layout import linked_paths, ordered_revisions
     try:
         links = linked_paths(project_root, calc_number)
         if links:

@@ -67,9 +67,6 @@ def calc_files(report: CalcReport, project: ProjectInfo, date: str, images: Equa
     return files, page
 
 
-RECORDS = ("project.toml", "signoffs", "issued", "templates")
-
-
 class CachedEquationImages(EquationImages):
     """Equation SVGs kept between builds in the project's authenticated cache."""
 

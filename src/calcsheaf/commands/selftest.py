@@ -72,7 +72,7 @@ def selftest(out_dir: Path | None = None, out=None) -> int:
     """Run the suite, print one line per case, write the report; 1 when any case fails."""
     out = out or sys.stdout
     from ..pipeline import analyse_paths
-    from .build import write_site
+    from ..outdir import write_site
 
     target = Path(out_dir) if out_dir else Path("selftest-out")
     check_output_folder(target)          # before the long run: refuse a folder we did not make
